@@ -1,0 +1,5 @@
+"""prespec: a git-backed design registry for planned experiments."""
+
+__version__ = "0.1.0"
+
+__all__ = ["__version__"]

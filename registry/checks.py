@@ -1,0 +1,246 @@
+"""What ``prespec check`` concludes about each spec: findings and the recomputed sample size.
+
+This module decides; it prints nothing and writes nothing. ``commands/check.py`` shows
+the results and ``report.py`` formats them.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import defaultdict
+from dataclasses import dataclass, field
+from typing import Any, Literal
+
+from .config import RegistryConfig
+from .discovery import SpecFile
+from .model import Spec
+from .power import InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
+from .problems import InvalidSpec
+from .validation import validate_document
+from .yamlio import Document, load_file
+
+__all__ = ["Finding", "SpecReport", "check_file", "check_files", "Severity", "CAUTION", "RECOMMENDED_FIELDS"]
+
+Severity = Literal["error", "warning", "info"]
+
+CAUTION = (
+    "prespec supports, and does not replace, review by a statistician, ethics or animal-welfare approval "
+    "and local regulations."
+)
+
+#: Fields a registered (non-draft) spec should state, with why a reviewer needs each.
+RECOMMENDED_FIELDS: dict[str, str] = {
+    "question": "the research question",
+    "population": "the population and experimental unit",
+    "hypotheses": "the hypotheses, one primary",
+    "outcomes": "the primary outcome and its unit",
+    "design.effect_rationale": "why the effect is the smallest that matters",
+    "design.variability_source": "where the SD assumption comes from",
+    "analysis_plan": "the analysis plan",
+    "exclusion_criteria": "the exclusion criteria",
+    "randomisation": "how units are randomised",
+    "blinding": "who is blinded and how",
+    "stopping_rule": "the stopping rule",
+    "contacts": "who is responsible",
+}
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One conclusion about a spec. ``kind`` values are a stable contract (docs/findings.md)."""
+
+    kind: str
+    severity: Severity
+    field: str
+    line: int | None
+    message: str
+    column: int | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"kind": self.kind, "severity": self.severity, "field": self.field, "line": self.line,
+                "column": self.column, "message": self.message}
+
+
+@dataclass
+class SpecReport:
+    """Everything check learned about one spec file."""
+
+    path: str
+    id: str | None = None
+    spec: Spec | None = None
+    document: Document | None = None
+    findings: list[Finding] = field(default_factory=list)
+    sample: SampleSize | None = None
+    at_planned: PowerAtN | None = None
+    problems_text: str = ""
+
+    @property
+    def planned_per_group(self) -> int | None:
+        return self.spec.sample_size.per_group if self.spec else None
+
+    @property
+    def required_per_group(self) -> int | None:
+        return self.sample.enrolment_per_group if self.sample else None
+
+    @property
+    def analysable_per_group(self) -> int | None:
+        return self.sample.n_per_group if self.sample else None
+
+    @property
+    def achieved_power(self) -> float | None:
+        return self.at_planned.power if self.at_planned else None
+
+    @property
+    def has_errors(self) -> bool:
+        return any(f.severity == "error" for f in self.findings)
+
+    @property
+    def verdict(self) -> str:
+        kinds = {f.kind for f in self.findings if f.severity == "error"}
+        for kind in ("invalid", "underpowered"):
+            if kind in kinds:
+                return kind
+        if kinds:
+            return sorted(kinds)[0]
+        if any(f.kind == "oversized" for f in self.findings):
+            return "oversized"
+        return "ok"
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "id": self.id,
+            "path": self.path,
+            "test": self.spec.design.test if self.spec else None,
+            "required_per_group": self.required_per_group,
+            "analysable_per_group": self.analysable_per_group,
+            "planned_per_group": self.planned_per_group,
+            "achieved_power": self.achieved_power,
+            "target_power": self.spec.design.power if self.spec else None,
+            "verdict": self.verdict,
+            "findings": [f.to_dict() for f in self.findings],
+        }
+
+    def add(self, kind: str, severity: Severity, field: str, message: str, loc: tuple[Any, ...] = ()) -> None:
+        line = column = None
+        if self.document is not None and loc:
+            line, column = self.document.position(loc)
+        self.findings.append(Finding(kind, severity, field, line, message, column))
+
+
+def _invalid(report: SpecReport, error: InvalidSpec) -> None:
+    for problem in error.problems:
+        report.findings.append(Finding("invalid", "error", problem.field, problem.line, problem.message,
+                                       problem.column))
+    report.problems_text = str(error)
+
+
+def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> SpecReport:
+    """Load, validate and size one spec file. Never raises for a bad file: it becomes findings."""
+    config = config or RegistryConfig()
+    report = SpecReport(path=spec_file.display)
+    if spec_file.outside:
+        report.add("invalid", "error", "", "is a symbolic link to a file outside the registry; "
+                   "specs must live inside the registry folder")
+        return report
+    try:
+        report.document = load_file(spec_file.path, spec_file.display)
+    except InvalidSpec as error:
+        _invalid(report, error)
+        return report
+    data = report.document.data
+    if isinstance(data.get("id"), str):
+        report.id = data["id"]
+    try:
+        report.spec = validate_document(report.document)
+    except InvalidSpec as error:
+        _invalid(report, error)
+        return report
+    spec = report.spec
+    report.id = spec.id
+    _size(report, spec, config)
+    _completeness(report, spec)
+    stem = spec_file.path.name.rsplit(".", 1)[0]
+    if stem != spec.id:
+        report.add("id-mismatch", "warning", "id",
+                   f"the file is named {spec_file.path.name!r} but the id is {spec.id!r}; "
+                   f"name it {spec.id}.yaml so people find it", ("id",))
+    return report
+
+
+def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
+    design = spec.design
+    try:
+        report.sample = solve_sample_size(design)
+    except InfeasibleDesign as error:
+        loc = tuple(error.field.split("."))
+        report.add("invalid", "error", error.field, error.message, loc)
+        return
+    sample = report.sample
+    family = design.family
+    planned = spec.sample_size.per_group
+    analysable = math.floor(planned * (1 - design.attrition) + 1e-9)
+    loc = ("sample_size", "per_group")
+    unit = family.unit if family.unit != "per group" else "per group"
+    if analysable >= family.min_n:
+        report.at_planned = power_at(design, analysable)
+    required = sample.enrolment_per_group
+    after = f" ({analysable} analysable after {design.attrition:.0%} attrition)" if design.attrition else ""
+    if planned < required:
+        achieved = (f"gives power {report.at_planned.power:.3f}" if report.at_planned
+                    else f"leaves fewer than {family.min_n} analysable units")
+        report.add(
+            "underpowered", "error", "sample_size.per_group",
+            f"planned {planned} {unit}{after} {achieved}, below the target {design.power:g}; "
+            f"{required} {unit} needed ({sample.n_per_group} analysable{_attrition_note(design.attrition)})",
+            loc,
+        )
+    elif planned > required * (1 + config.oversize_margin):
+        extra = planned - required
+        report.add(
+            "oversized", "warning", "sample_size.per_group",
+            f"planned {planned} {unit} is {extra / required:.0%} more than the {required} needed for power "
+            f"{design.power:g} (power at the planned n: {report.at_planned.power:.3f}); {extra} more units "
+            f"{'per group ' if family.groups > 1 else ''}than the design needs, reduce the enrolment or justify it",
+            loc,
+        )
+
+
+def _attrition_note(attrition: float) -> str:
+    return f", enrolled for {attrition:.0%} attrition" if attrition else ""
+
+
+def _completeness(report: SpecReport, spec: Spec) -> None:
+    if spec.status == "draft":
+        return
+    for path, what in RECOMMENDED_FIELDS.items():
+        value: Any = spec
+        for part in path.split("."):
+            value = getattr(value, part, None)
+        if value in (None, [], ""):
+            report.add("incomplete", "warning", path,
+                       f"a {spec.status} spec should state {what} ({path})", ())
+    fields_set = spec.design.model_fields_set
+    for name in ("alpha", "power"):
+        if name not in fields_set:
+            report.add("incomplete", "warning", f"design.{name}",
+                       f"design.{name} is not stated; the default {getattr(spec.design, name):g} was used, "
+                       "state it so reviewers see it", ("design",))
+
+
+def check_files(files: list[SpecFile], config_for: Any = None) -> list[SpecReport]:
+    """Check every file, then the registry-wide rules (unique ids)."""
+    reports = []
+    for spec_file in files:
+        config = config_for(spec_file) if config_for else RegistryConfig()
+        reports.append(check_file(spec_file, config))
+    by_id: dict[str, list[SpecReport]] = defaultdict(list)
+    for report in reports:
+        if report.spec is not None:
+            by_id[report.spec.id].append(report)
+    for spec_id, same in by_id.items():
+        if len(same) > 1:
+            for report in same:
+                others = ", ".join(r.path for r in same if r is not report)
+                report.add("duplicate-id", "error", "id",
+                           f"id {spec_id!r} is also used by {others}; ids must be unique in the registry", ("id",))
+    return reports

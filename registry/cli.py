@@ -1,0 +1,70 @@
+"""The ``prespec`` command line: ``main(argv) -> int`` so tests call it directly."""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import traceback
+from types import ModuleType
+
+from . import __version__
+from .commands import check, new, schema
+from .discovery import UsageError
+
+__all__ = ["main", "COMMANDS"]
+
+#: Each command module has ``HELP``, ``add_arguments(parser)`` and ``run(args) -> int``.
+COMMANDS: tuple[ModuleType, ...] = (check, schema, new)
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> None:  # type: ignore[override]
+        raise UsageError(f"{self.prog}: {message}")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="prespec",
+        description="Keep planned experiments as YAML specs in git: validate them, recompute their sample "
+        "size, catch design changes after data collection starts, and write checkable summaries.",
+    )
+    parser.add_argument("--version", action="version", version=f"prespec {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    for module in COMMANDS:
+        name = module.__name__.rsplit(".", 1)[-1]
+        command = sub.add_parser(name, help=module.HELP, description=module.HELP)
+        module.add_arguments(command)
+        command.set_defaults(run=module.run)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run prespec; return the exit status (0 ok, 1 findings, 2 usage error)."""
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+        if not getattr(args, "command", None):
+            parser.print_help(sys.stderr)
+            return 2
+        return int(args.run(args))
+    except UsageError as error:
+        print(f"prespec: error: {error}", file=sys.stderr)
+        return 2
+    except SystemExit as exit_:  # --help and --version
+        return int(exit_.code or 0) if isinstance(exit_.code, int) or exit_.code is None else 2
+    except KeyboardInterrupt:
+        print("prespec: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        return 0
+    except Exception as error:  # noqa: BLE001 - last line of defence: no traceback for users
+        if os.environ.get("PRESPEC_DEBUG"):
+            traceback.print_exc()
+        print(f"prespec: internal error: {type(error).__name__}: {error}\n"
+              "This is a bug in prespec; set PRESPEC_DEBUG=1 for details and please report it.", file=sys.stderr)
+        return 3
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

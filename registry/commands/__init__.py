@@ -1,0 +1,1 @@
+"""One module per ``prespec`` command; each exports ``<name>(...) -> int``."""

@@ -1,0 +1,72 @@
+"""``prespec check``: validate specs and recompute their sample sizes."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from ..checks import CAUTION, SpecReport, check_files
+from ..config import RegistryConfig, find_config, load_config
+from ..discovery import SpecFile, UsageError, discover
+from ..problems import InvalidSpec
+from ..report import console, print_findings, print_table, summary_line, to_json
+
+__all__ = ["check", "HELP", "add_arguments", "run"]
+
+HELP = "validate specs, recompute each sample size and flag under- and oversized designs"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("paths", nargs="*", metavar="PATH", default=None,
+                        help="registry folders and/or spec files (default: the current folder)")
+    parser.add_argument("--json", action="store_true", help="print the results as JSON")
+    parser.add_argument("--oversize-margin", type=float, default=None, metavar="FRACTION",
+                        help="flag a design as oversized above required x (1 + FRACTION) "
+                        "(default 0.25, or the registry's .prespec.yaml)")
+
+
+def run(args: argparse.Namespace) -> int:
+    return check(args.paths or ["."], as_json=args.json, oversize_margin=args.oversize_margin)
+
+
+def _config_loader(margin: float | None, errors: list[str]):
+    cache: dict[Path | None, RegistryConfig] = {}
+
+    def config_for(spec_file: SpecFile) -> RegistryConfig:
+        where = find_config(spec_file.root)
+        if where not in cache:
+            try:
+                cache[where] = load_config(where)
+            except InvalidSpec as error:
+                errors.append(str(error))
+                cache[where] = RegistryConfig()
+        config = cache[where]
+        return config if margin is None else config.model_copy(update={"oversize_margin": margin})
+
+    return config_for
+
+
+def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | None = None) -> int:
+    """Check every spec under ``paths``; 0 when no error finding, 1 otherwise."""
+    if oversize_margin is not None and not 0 <= oversize_margin <= 10:
+        raise UsageError(f"--oversize-margin must be between 0 and 10; got {oversize_margin!r}")
+    files = discover(paths)
+    config_errors: list[str] = []
+    reports: list[SpecReport] = check_files(files, _config_loader(oversize_margin, config_errors))
+    failed = any(r.has_errors for r in reports) or bool(config_errors)
+    if as_json:
+        print(to_json(reports, {"config_errors": config_errors} if config_errors else None))
+        return 1 if failed else 0
+    out = console()
+    for error in config_errors:
+        print(error, file=sys.stderr)
+    if not reports:
+        out.print(f"No spec files (*.yaml, *.yml) found under {', '.join(paths)}.")
+        return 0
+    print_table(out, reports)
+    print_findings(out, reports)
+    out.print()
+    out.print(summary_line(reports))
+    out.print(f"Note: {CAUTION}")
+    return 1 if failed else 0

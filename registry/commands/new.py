@@ -1,0 +1,118 @@
+"""``prespec new``: start a spec from a commented template (never overwriting a file)."""
+
+from __future__ import annotations
+
+import argparse
+import os
+import re
+from datetime import date, timedelta
+from pathlib import Path
+
+from ..discovery import UsageError
+from ..fsutil import WriteRefused, write_atomic
+from ..model import ID_PATTERN, SCHEMA_ID
+from ..power import design_from_params, family_names, get_family, solve_sample_size
+from ..power.catalog import UnknownFamily
+
+__all__ = ["new", "template", "HELP", "add_arguments", "run"]
+
+HELP = "write a new spec from a commented template"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("id", metavar="ID", help="the spec id: lowercase letters, digits and hyphens")
+    parser.add_argument("--dir", default=".", metavar="DIR", help="registry folder to write ID.yaml into")
+    parser.add_argument("--test", default="two-sample-t", metavar="FAMILY",
+                        help=f"design family (default two-sample-t); one of: {', '.join(family_names())}")
+    parser.add_argument("--title", default=None, help="the experiment's title")
+
+
+def run(args: argparse.Namespace) -> int:
+    return new(args.id, folder=args.dir, test=args.test, title=args.title)
+
+
+def _schema_reference(folder: Path) -> str:
+    """Relative path from ``folder`` to the nearest schemas/ copy of the spec schema."""
+    for candidate in (folder.resolve(), *folder.resolve().parents):
+        schema = candidate / "schemas" / SCHEMA_ID
+        if schema.is_file():
+            return Path(os.path.relpath(schema, folder.resolve())).as_posix()
+        if (candidate / ".git").exists():
+            break
+    return SCHEMA_ID
+
+
+def _yaml_scalar(value: object) -> str:
+    if isinstance(value, str):
+        return '"' + value.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    return repr(value)
+
+
+def template(spec_id: str, test: str, title: str | None, schema_ref: str, today: date | None = None) -> str:
+    family = get_family(test)
+    start = (today or date.today()) + timedelta(days=90)
+    effect = dict(family.example)
+    planned = solve_sample_size(design_from_params(test, **effect, attrition=0.1)).enrolment_per_group
+    effect_lines = "\n".join(f"    {key}: {_yaml_scalar(value)}" for key, value in effect.items())
+    shown_title = title or f"Title of the {spec_id} experiment"
+    return f"""# yaml-language-server: $schema={schema_ref}
+# A prespec experiment spec. Fields marked locked in docs/spec-format.md define the design:
+# once data collection starts, change them only with an entry under 'amendments'.
+id: {spec_id}
+title: {_yaml_scalar(shown_title)}
+status: draft            # draft | planned | collecting | complete | withdrawn
+question: "What does the experiment ask?"
+population: "Who or what is studied, and the experimental unit."
+hypotheses:
+  - id: H1
+    statement: "The primary hypothesis, as the primary analysis tests it."
+    primary: true
+outcomes:
+  primary:
+    name: "primary outcome"
+    unit: "unit"
+  secondary: []
+data_collection:
+  start: {start.isoformat()}      # first day of data collection
+design:
+  test: {test}           # {family.title}
+  alternative: two-sided
+  alpha: 0.05
+  power: 0.8
+  effect:                # replace with your smallest effect of interest
+{effect_lines}
+  attrition: 0.1         # expected fraction lost before analysis
+  effect_rationale: "Why this is the smallest effect that matters."
+  variability_source: "Where the SD comes from (e.g. control groups of earlier experiments)."
+sample_size:
+  per_group: {planned}          # recomputed by 'prespec check' from the assumptions above
+analysis_plan: "How the primary outcome is analysed."
+exclusion_criteria: []
+randomisation: "How units are allocated to groups."
+blinding: "Who is blinded, and how."
+stopping_rule: "Data collection stops when the planned sample size is reached."
+contacts: []
+amendments: []
+"""
+
+
+def new(spec_id: str, *, folder: str = ".", test: str = "two-sample-t", title: str | None = None) -> int:
+    if not re.match(ID_PATTERN, spec_id) or len(spec_id) > 64:
+        raise UsageError(f"id must be lowercase letters, digits and single hyphens (at most 64); got {spec_id!r}")
+    try:
+        get_family(test)
+    except UnknownFamily as error:
+        raise UsageError(str(error)) from None
+    target_folder = Path(folder)
+    if target_folder.exists() and not target_folder.is_dir():
+        raise UsageError(f"{folder}: not a folder")
+    target = target_folder / f"{spec_id}.yaml"
+    schema_ref = _schema_reference(target_folder) if target_folder.exists() else SCHEMA_ID
+    try:
+        write_atomic(target, template(spec_id, test, title, schema_ref), overwrite=False)
+    except WriteRefused as error:
+        raise UsageError(str(error)) from None
+    print(f"wrote {target}: fill in the assumptions, then run 'prespec check {target}'")
+    if schema_ref == SCHEMA_ID:
+        print(f"hint: run 'prespec schema --out {target_folder / SCHEMA_ID}' so editors can validate the spec")
+    return 0

@@ -1,0 +1,66 @@
+"""The registry of design families: adding a family is one line in ``FAMILIES``."""
+
+from __future__ import annotations
+
+import difflib
+from typing import Annotated, Literal, Union
+
+from pydantic import Field, create_model
+
+from .base import DesignBase, Family, locked
+from .one_sample_t import OneSampleT
+from .paired_t import PairedT
+from .two_sample_t import TwoSampleT
+
+__all__ = ["FAMILIES", "family_names", "get_family", "DesignUnion", "UnknownFamily"]
+
+#: Every design family prespec knows, in the order they are listed to users.
+FAMILIES: tuple[Family, ...] = (
+    OneSampleT(),
+    PairedT(),
+    TwoSampleT(),
+)
+
+_BY_NAME = {family.name: family for family in FAMILIES}
+
+
+class UnknownFamily(ValueError):
+    def __init__(self, name: object) -> None:
+        self.name = name
+        known = ", ".join(family_names())
+        close = difflib.get_close_matches(str(name), family_names(), n=1)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        super().__init__(f"{name!r} is not a known design family{hint} Known families: {known}")
+
+
+def family_names() -> list[str]:
+    return [family.name for family in FAMILIES]
+
+
+def get_family(name: str) -> Family:
+    try:
+        return _BY_NAME[name]
+    except KeyError:
+        raise UnknownFamily(name) from None
+
+
+def _design_model(family: Family) -> type[DesignBase]:
+    camel = "".join(part.capitalize() for part in family.name.split("-"))
+    model = create_model(
+        f"{camel}Design",
+        __base__=DesignBase,
+        __doc__=f"design: block for the {family.title}.",
+        test=(Literal[family.name], locked(description=f"Design family: {family.title}.")),  # type: ignore[valid-type]
+        effect=(family.effect_model, locked(description="The effect to detect, in natural or standardized units.")),
+    )
+    return model
+
+
+for _family in FAMILIES:
+    type(_family).design_model = _design_model(_family)
+
+#: The ``design:`` block of a spec: one model per family, chosen by ``test``.
+DesignUnion = Annotated[
+    Union[tuple(type(f).design_model for f in FAMILIES)],  # type: ignore[misc]
+    Field(discriminator="test"),
+]

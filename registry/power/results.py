@@ -1,0 +1,78 @@
+"""Small named results with a readable repr."""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass, field
+from typing import Any
+
+__all__ = ["SampleSize", "PowerAtN"]
+
+
+@dataclass(frozen=True, repr=False)
+class SampleSize:
+    """The smallest analysable sample reaching the target power, and its enrolment."""
+
+    test: str
+    n_per_group: int
+    n_total: int
+    achieved_power: float
+    target_power: float
+    alpha: float
+    alternative: str
+    effect_size: float
+    symbol: str
+    group_sizes: tuple[int, ...]
+    enrolment_per_group: int
+    enrolment_total: int
+    unit: str
+    method: str
+    reference: str
+    events: int | None = None
+    notes: tuple[str, ...] = field(default_factory=tuple)
+
+    def __repr__(self) -> str:
+        events = f", events={self.events}" if self.events is not None else ""
+        return (
+            f"SampleSize(test={self.test!r}, n_per_group={self.n_per_group}, n_total={self.n_total}"
+            f"{events}, achieved_power={self.achieved_power:.4f})"
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        out = asdict(self)
+        out["group_sizes"] = list(self.group_sizes)
+        out["notes"] = list(self.notes)
+        return out
+
+
+@dataclass(frozen=True, repr=False)
+class PowerAtN:
+    """Power at a given analysable n, and the smallest effect detectable there."""
+
+    test: str
+    n_per_group: int
+    n_total: int
+    power: float
+    alpha: float
+    alternative: str
+    target_power: float
+    effect_size: float
+    symbol: str
+    minimum_detectable_effect: float | None
+    minimum_detectable_natural: dict[str, float]
+    group_sizes: tuple[int, ...]
+    unit: str
+    events: int | None = None
+    notes: tuple[str, ...] = field(default_factory=tuple)
+
+    def __repr__(self) -> str:
+        mde = "None" if self.minimum_detectable_effect is None else f"{self.minimum_detectable_effect:.4f}"
+        return (
+            f"PowerAtN(test={self.test!r}, n_per_group={self.n_per_group}, power={self.power:.4f}, "
+            f"minimum_detectable_effect={mde})"
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        out = asdict(self)
+        out["group_sizes"] = list(self.group_sizes)
+        out["notes"] = list(self.notes)
+        return out

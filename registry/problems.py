@@ -1,0 +1,72 @@
+"""What goes wrong with one input file, and how it is shown to a person.
+
+Every loader and validator in prespec reports :class:`Problem` objects; a file with
+any of them raises one :class:`InvalidSpec` that carries them all, so a user sees
+every mistake in a file at once, each with its line, field and a caret under it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+__all__ = ["Problem", "InvalidSpec", "NO_VALUE", "format_problem"]
+
+
+class _NoValue:
+    def __repr__(self) -> str:  # pragma: no cover - debugging aid
+        return "NO_VALUE"
+
+
+#: Marker for "the problem is not about a particular value" (a missing key, a file).
+NO_VALUE: Any = _NoValue()
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One mistake in one file: where it is, which field, and what is allowed."""
+
+    field: str
+    message: str
+    line: int | None = None
+    column: int | None = None
+    value: Any = NO_VALUE
+
+    def location(self, path: str) -> str:
+        if self.line is None:
+            return path
+        if self.column is None:
+            return f"{path}:{self.line}"
+        return f"{path}:{self.line}:{self.column}"
+
+
+def format_problem(problem: Problem, path: str, source_lines: list[str] | None = None) -> str:
+    """``file:line:col: field: message`` followed by the source line and a caret."""
+    head = problem.location(path) + ": "
+    if problem.field:
+        head += problem.field + ": "
+    text = head + problem.message
+    if source_lines and problem.line is not None and 1 <= problem.line <= len(source_lines):
+        shown = source_lines[problem.line - 1].rstrip("\r\n").replace("\t", " ")
+        if len(shown) > 160:
+            shown = shown[:157] + "..."
+        gutter = f"{problem.line:>5} | "
+        text += f"\n{gutter}{shown}"
+        if problem.column is not None and problem.column - 1 <= len(shown):
+            text += "\n" + " " * (len(gutter) - 2) + "| " + " " * (problem.column - 1) + "^"
+    return text
+
+
+@dataclass
+class InvalidSpec(ValueError):
+    """A spec file that cannot be used; carries every problem found in it."""
+
+    path: str
+    problems: list[Problem]
+    source_lines: list[str] = field(default_factory=list, repr=False)
+
+    def __post_init__(self) -> None:
+        super().__init__(self.path, self.problems)
+
+    def __str__(self) -> str:
+        return "\n".join(format_problem(p, self.path, self.source_lines) for p in self.problems)

@@ -1,0 +1,98 @@
+"""Human and JSON output of check results."""
+
+from __future__ import annotations
+
+import json
+import os
+import sys
+from typing import IO, Any
+
+from rich.console import Console
+from rich.table import Table
+from rich.text import Text
+
+from .checks import CAUTION, SpecReport
+
+__all__ = ["console", "print_table", "print_findings", "to_json", "VERDICT_STYLES"]
+
+VERDICT_STYLES = {"ok": "green", "oversized": "yellow", "underpowered": "bold red", "invalid": "bold red"}
+_SEVERITY_STYLES = {"error": "red", "warning": "yellow", "info": "cyan"}
+
+
+def console(file: IO[str] | None = None) -> Console:
+    """A console that uses colour only on a terminal and never when NO_COLOR is set."""
+    stream = file or sys.stdout
+    tty = bool(getattr(stream, "isatty", lambda: False)())
+    plain = bool(os.environ.get("NO_COLOR")) or not tty
+    return Console(file=stream, color_system=None if plain else "auto", no_color=plain, highlight=False,
+                   emoji=False, width=None if tty else 120)
+
+
+def _n(value: int | None) -> str:
+    return "-" if value is None else f"{value:,}"
+
+
+def print_table(out: Console, reports: list[SpecReport]) -> None:
+    table = Table(title=None, show_edge=False, header_style="bold", pad_edge=False)
+    table.add_column("spec")
+    table.add_column("design")
+    table.add_column("planned", justify="right")
+    table.add_column("needed", justify="right")
+    table.add_column("power", justify="right")
+    table.add_column("target", justify="right")
+    table.add_column("verdict")
+    for report in reports:
+        spec = report.spec
+        power = "-" if report.achieved_power is None else f"{report.achieved_power:.3f}"
+        target = "-" if spec is None else f"{spec.design.power:g}"
+        verdict = report.verdict
+        table.add_row(
+            report.id or report.path,
+            spec.design.test if spec else "-",
+            _n(report.planned_per_group),
+            _n(report.required_per_group),
+            power,
+            target,
+            Text(verdict, style=VERDICT_STYLES.get(verdict, "bold red")),
+        )
+    out.print(table)
+
+
+def print_findings(out: Console, reports: list[SpecReport], *, show_info: bool = True) -> None:
+    for report in reports:
+        shown = [f for f in report.findings if show_info or f.severity != "info"]
+        if not shown:
+            continue
+        out.print()
+        out.print(Text(f"{report.path}" + (f"  ({report.id})" if report.id else ""), style="bold"))
+        lines = report.document.source_lines if report.document else []
+        for finding in shown:
+            where = f"{report.path}:{finding.line}" if finding.line else report.path
+            if finding.line and finding.column:
+                where += f":{finding.column}"
+            head = Text("  ")
+            head.append(f"{finding.severity} {finding.kind}", style=_SEVERITY_STYLES[finding.severity])
+            head.append(f"  {where}")
+            if finding.field:
+                head.append(f"  {finding.field}", style="bold")
+            out.print(head)
+            out.print(Text("    " + finding.message))
+            if finding.kind == "invalid" and finding.line and 1 <= finding.line <= len(lines):
+                source = lines[finding.line - 1].rstrip("\r\n").replace("\t", " ")[:160]
+                out.print(Text(f"    {finding.line:>4} | {source}", style="dim"))
+                if finding.column and finding.column - 1 <= len(source):
+                    out.print(Text("         | " + " " * (finding.column - 1) + "^", style="dim"))
+
+
+def summary_line(reports: list[SpecReport]) -> str:
+    errors = sum(1 for r in reports if r.has_errors)
+    warnings = sum(1 for r in reports for f in r.findings if f.severity == "warning")
+    return (f"{len(reports)} spec{'s' if len(reports) != 1 else ''} checked: {errors} with errors, "
+            f"{warnings} warning{'s' if warnings != 1 else ''}.")
+
+
+def to_json(reports: list[SpecReport], extra: dict[str, Any] | None = None) -> str:
+    payload: dict[str, Any] = {"specs": [r.to_dict() for r in reports]}
+    payload.update(extra or {})
+    payload["caution"] = CAUTION
+    return json.dumps(payload, indent=2, ensure_ascii=False)

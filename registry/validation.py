@@ -1,0 +1,243 @@
+"""Turn pydantic's validation errors into messages a lab user can act on.
+
+Each message names the field, quotes the bad value with ``!r``, says what is allowed
+and, for an unknown key, suggests the nearest allowed one. Positions come from the
+:class:`~registry.yamlio.Document`, so every problem points at its line and column.
+"""
+
+from __future__ import annotations
+
+import difflib
+import re
+import types
+import typing
+from typing import Any, Union
+
+from pydantic import BaseModel, ValidationError
+
+from .model import Spec
+from .power.catalog import family_names
+from .problems import NO_VALUE, InvalidSpec, Problem
+from .yamlio import Document
+
+__all__ = ["validate_document", "messages_for", "allowed_keys"]
+
+_UNIT_RE = re.compile(r"^\s*[-+]?(\d+\.?\d*|\.\d+)(e[-+]?\d+)?\s*(%|[^\d\s].*)$", re.IGNORECASE)
+
+
+def _strip_tags(loc: tuple[Any, ...], model: type[BaseModel]) -> tuple[Any, ...]:
+    """pydantic puts the discriminator value into the location of a tagged union; drop it."""
+    out: list[Any] = []
+    current: Any = model
+    for part in loc:
+        members = _union_members(current)
+        if members is not None and isinstance(part, str) and part in members:
+            current = members[part]
+            continue
+        out.append(part)
+        current = _child(current, part)
+    return tuple(out)
+
+
+def _unwrap(annotation: Any) -> Any:
+    while True:
+        origin = typing.get_origin(annotation)
+        if origin is typing.Annotated:
+            annotation = typing.get_args(annotation)[0]
+            continue
+        if origin in (Union, types.UnionType):
+            args = [a for a in typing.get_args(annotation) if a is not type(None)]
+            if len(args) == 1:
+                annotation = args[0]
+                continue
+        return annotation
+
+
+def _union_members(annotation: Any) -> dict[str, type[BaseModel]] | None:
+    annotation = _unwrap(annotation)
+    if typing.get_origin(annotation) not in (Union, types.UnionType):
+        return None
+    members: dict[str, type[BaseModel]] = {}
+    for arg in typing.get_args(annotation):
+        if isinstance(arg, type) and issubclass(arg, BaseModel) and "test" in arg.model_fields:
+            tag = typing.get_args(arg.model_fields["test"].annotation)
+            if tag:
+                members[tag[0]] = arg
+    return members or None
+
+
+def _child(current: Any, part: Any) -> Any:
+    current = _unwrap(current)
+    if current is None:
+        return None
+    if isinstance(part, int):
+        if typing.get_origin(current) in (list, tuple):
+            args = typing.get_args(current)
+            return args[0] if args else None
+        return None
+    if isinstance(current, type) and issubclass(current, BaseModel):
+        info = current.model_fields.get(part)
+        return info.annotation if info is not None else None
+    return None
+
+
+def allowed_keys(model: type[BaseModel], loc: tuple[Any, ...], data: Any = None) -> list[str]:
+    """The keys a mapping at ``loc`` (YAML path, without union tags) may hold."""
+    current: Any = model
+    node = data
+    for part in loc:
+        current = _unwrap(current)
+        members = _union_members(current)
+        if members is not None:
+            tag = node.get("test") if isinstance(node, dict) else None
+            current = members.get(tag) if tag in members else None
+            if current is None:
+                return []
+        current = _child(current, part)
+        node = node.get(part) if isinstance(node, dict) else node[part] if isinstance(node, list) and isinstance(
+            part, int) and part < len(node) else None
+    current = _unwrap(current)
+    members = _union_members(current)
+    if members is not None:
+        tag = node.get("test") if isinstance(node, dict) else None
+        current = members.get(tag)
+    if isinstance(current, type) and issubclass(current, BaseModel):
+        return list(current.model_fields)
+    return []
+
+
+def _dotted(loc: tuple[Any, ...]) -> str:
+    out = ""
+    for part in loc:
+        out += f"[{part}]" if isinstance(part, int) else ("." if out else "") + str(part)
+    return out
+
+
+def _name(loc: tuple[Any, ...]) -> str:
+    for part in reversed(loc):
+        if isinstance(part, str):
+            return part
+    return "value"
+
+
+def _number_hint(value: Any) -> str:
+    if isinstance(value, str):
+        match = _UNIT_RE.match(value)
+        if match:
+            number, unit = match.group(1), match.group(3).strip()
+            if unit == "%":
+                return f"; write the number without '%' ({float(number) / 100:g} for {value.strip()})"
+            return (f"; write the number alone ({number}) without the unit {unit!r}: "
+                    "units belong in outcomes.primary.unit")
+    return ""
+
+
+def _message(error: dict[str, Any], loc: tuple[Any, ...], model: type[BaseModel], data: Any) -> str:
+    kind = error["type"]
+    name = _name(loc)
+    value = error.get("input")
+    ctx = error.get("ctx") or {}
+    if kind == "missing":
+        return f"{name} is required here"
+    if kind == "extra_forbidden":
+        allowed = allowed_keys(model, loc[:-1], data)
+        close = difflib.get_close_matches(str(loc[-1]), allowed, n=1, cutoff=0.6)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        listing = f" Allowed here: {', '.join(allowed)}." if allowed else ""
+        return f"unknown key {loc[-1]!r}{hint}{listing}"
+    if kind == "union_tag_invalid":
+        tag = ctx.get("tag", value)
+        close = difflib.get_close_matches(str(tag), family_names(), n=1, cutoff=0.5)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        return f"{tag!r} is not a known design family{hint} Known families: {', '.join(family_names())}"
+    if kind == "union_tag_not_found":
+        return f"test is required: name the design family, one of {', '.join(family_names())}"
+    if kind in ("value_error", "assertion_error"):
+        message = str(ctx.get("error", error["msg"]))
+        message = re.sub(r"^(Value|Assertion) error, ", "", message)
+        if message.startswith("must ") or message.startswith("is "):
+            return f"{name} {message}"
+        return message
+    if kind in ("float_type", "float_parsing", "int_parsing", "decimal_type"):
+        what = "a whole number" if kind == "int_parsing" else "a number"
+        return f"{name} must be {what}; got {value!r}{_number_hint(value)}"
+    if kind in ("int_type", "int_from_float"):
+        if isinstance(value, float):
+            return f"{name} must be a whole number; got {value!r}"
+        return f"{name} must be a whole number; got {value!r}{_number_hint(value)}"
+    if kind == "finite_number":
+        return f"{name} must be a finite number; got {value!r}"
+    if kind in ("greater_than", "greater_than_equal", "less_than", "less_than_equal"):
+        words = {"greater_than": "greater than", "greater_than_equal": "at least",
+                 "less_than": "less than", "less_than_equal": "at most"}[kind]
+        bound = next(iter(ctx.values()))
+        bound_text = f"{bound:,}" if isinstance(bound, int) else f"{bound:g}"
+        return f"{name} must be {words} {bound_text}; got {value!r}"
+    if kind == "literal_error":
+        expected = ctx.get("expected", "")
+        options = re.findall(r"'([^']*)'", expected)
+        close = difflib.get_close_matches(str(value), options, n=1, cutoff=0.5)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        return f"{name} must be one of {expected}; got {value!r}{hint}"
+    if kind in ("string_type", "str_type"):
+        return f"{name} must be text; got {value!r} (quote it if it is meant as text)"
+    if kind == "string_too_short":
+        return f"{name} must not be empty"
+    if kind == "string_too_long":
+        return f"{name} is {len(value):,} characters long; at most {ctx.get('max_length'):,} are allowed"
+    if kind in ("bool_type", "bool_parsing"):
+        return f"{name} must be true or false; got {value!r}"
+    if kind in ("list_type", "tuple_type"):
+        return f"{name} must be a list; got {_short(value)}"
+    if kind == "too_short":
+        return f"{name} must have at least {ctx.get('min_length')} item(s)"
+    if kind == "too_long":
+        return f"{name} has too many items; at most {ctx.get('max_length')}"
+    if kind in ("model_type", "model_attributes_type", "dict_type"):
+        keys = allowed_keys(model, loc, data)
+        listing = f" with keys {', '.join(keys)}" if keys else ""
+        return f"{name} must be a mapping{listing}; got {_short(value)}"
+    if kind in ("date_type", "date_parsing", "date_from_datetime_parsing", "date_from_datetime_inexact"):
+        return f"{name} must be a date written YYYY-MM-DD; got {value!r}"
+    return f"{name}: {error['msg']}; got {_short(value)}"
+
+
+def _short(value: Any) -> str:
+    text = repr(value)
+    return text if len(text) <= 80 else text[:77] + "..."
+
+
+def _problems(exc: ValidationError, model: type[BaseModel], data: Any, doc: Document | None) -> list[Problem]:
+    problems: list[Problem] = []
+    seen: set[tuple[str, str]] = set()
+    for error in exc.errors(include_url=False):
+        loc = _strip_tags(tuple(error["loc"]), model)
+        message = _message(error, loc, model, data)
+        field = _dotted(loc)
+        if (field, message) in seen:
+            continue
+        seen.add((field, message))
+        line = column = None
+        if doc is not None:
+            line, column = doc.position(loc, key=error["type"] in ("extra_forbidden", "missing"))
+        value = error.get("input", NO_VALUE) if error["type"] != "missing" else NO_VALUE
+        problems.append(Problem(field, message, line, column, value))
+    return problems
+
+
+def messages_for(exc: ValidationError, model: type[BaseModel], data: Any = None) -> list[str]:
+    """``field: message`` strings for a validation error outside any file (Python API, CLI)."""
+    out = []
+    for problem in _problems(exc, model, data, None):
+        name = problem.field.rsplit(".", 1)[-1]
+        plain = not problem.field or problem.message.startswith(name + " ")
+        out.append(problem.message if plain else f"{problem.field}: {problem.message}")
+    return out
+
+
+def validate_document(doc: Document) -> Spec:
+    """Validate a loaded document against :class:`Spec`; raise :class:`InvalidSpec` with every problem."""
+    try:
+        return Spec.model_validate(doc.data)
+    except ValidationError as exc:
+        raise InvalidSpec(doc.path, _problems(exc, Spec, doc.data, doc), doc.source_lines) from None

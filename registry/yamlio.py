@@ -1,0 +1,290 @@
+"""Safe YAML loading that remembers where every value came from.
+
+ruamel.yaml composes the node graph; this module builds plain Python values from it
+itself, so no tag can ever construct an object, duplicate keys and alias bombs are
+caught, and each key and value keeps its line and column for error messages.
+Only the YAML core types are accepted: mappings, sequences, strings, integers,
+floats, booleans, null and dates (kept as ISO text for the model to parse).
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from ruamel.yaml import YAML
+from ruamel.yaml.error import MarkedYAMLError, YAMLError
+from ruamel.yaml.nodes import MappingNode, Node, ScalarNode, SequenceNode
+
+from .problems import NO_VALUE, InvalidSpec, Problem
+
+__all__ = [
+    "Document",
+    "Location",
+    "load_text",
+    "load_bytes",
+    "load_file",
+    "dump",
+    "MAX_FILE_BYTES",
+    "MAX_NODES",
+    "MAX_DEPTH",
+]
+
+#: A spec is a page of text; anything larger is not a spec.
+MAX_FILE_BYTES = 1_000_000
+#: Values built after expanding aliases; bounds memory against "billion laughs".
+MAX_NODES = 20_000
+#: Nesting depth of mappings and sequences.
+MAX_DEPTH = 40
+
+Location = tuple[Any, ...]  # field path: ("design", "effect", "sd") or ("amendments", 0, "date")
+
+_CORE = "tag:yaml.org,2002:"
+_SCALAR_TAGS = {_CORE + t for t in ("str", "int", "float", "bool", "null", "timestamp", "binary")}
+_INT_RE = re.compile(r"^[-+]?(0|[1-9][0-9_]*)$")
+
+
+@dataclass
+class Document:
+    """Plain data of one YAML file plus the position of every key and value."""
+
+    path: str
+    data: Any
+    source: str
+    value_positions: dict[Location, tuple[int, int]] = field(default_factory=dict)
+    key_positions: dict[Location, tuple[int, int]] = field(default_factory=dict)
+
+    @property
+    def source_lines(self) -> list[str]:
+        return self.source.splitlines()
+
+    def position(self, loc: Location, *, key: bool = False) -> tuple[int | None, int | None]:
+        """1-based (line, column) of the value (or key) at ``loc``, else of its nearest ancestor."""
+        loc = tuple(loc)
+        if key and loc in self.key_positions:
+            return self.key_positions[loc]
+        while True:
+            if loc in self.value_positions:
+                return self.value_positions[loc]
+            if loc in self.key_positions:
+                return self.key_positions[loc]
+            if not loc:
+                return (None, None)
+            loc = loc[:-1]
+
+
+class _Builder:
+    def __init__(self, doc: Document) -> None:
+        self.doc = doc
+        self.problems: list[Problem] = []
+        self.nodes = 0
+
+    def _problem(self, loc: Location, node: Node, message: str, value: Any = NO_VALUE) -> None:
+        mark = node.start_mark
+        self.problems.append(Problem(_dotted(loc), message, mark.line + 1, mark.column + 1, value))
+
+    def build(self, node: Node, loc: Location, depth: int = 0) -> Any:
+        self.nodes += 1
+        if self.nodes == MAX_NODES + 1:
+            self._problem(loc, node, f"too many values (more than {MAX_NODES}) once aliases are expanded; "
+                          "a spec is plain data, write values out instead of multiplying them with aliases")
+        if self.nodes > MAX_NODES:
+            return None
+        if depth > MAX_DEPTH:
+            self._problem(loc, node, f"nested more than {MAX_DEPTH} levels deep; a spec is at most a few levels deep")
+            return None
+        self.doc.value_positions.setdefault(loc, (node.start_mark.line + 1, node.start_mark.column + 1))
+        tag = str(node.tag) if node.tag is not None else ""
+        if isinstance(node, MappingNode):
+            if tag != _CORE + "map":
+                self._problem(loc, node, f"tag {_short_tag(tag)!s} is not allowed; specs hold plain data only "
+                              "(mappings, lists, text, numbers, true/false, dates)")
+                return None
+            return self._mapping(node, loc, depth)
+        if isinstance(node, SequenceNode):
+            if tag != _CORE + "seq":
+                self._problem(loc, node, f"tag {_short_tag(tag)!s} is not allowed; specs hold plain data only "
+                              "(mappings, lists, text, numbers, true/false, dates)")
+                return None
+            return [self.build(item, loc + (i,), depth + 1) for i, item in enumerate(node.value)]
+        assert isinstance(node, ScalarNode)
+        return self._scalar(node, loc, tag)
+
+    def _mapping(self, node: MappingNode, loc: Location, depth: int) -> dict[str, Any]:
+        out: dict[str, Any] = {}
+        first_seen: dict[str, int] = {}
+        for key_node, value_node in node.value:
+            self.nodes += 1
+            if str(key_node.tag) == _CORE + "merge":
+                self._problem(loc, key_node, "merge keys ('<<') are not supported; write the keys out")
+                continue
+            if not isinstance(key_node, ScalarNode):
+                self._problem(loc, key_node, "a key must be plain text, not a list or mapping")
+                continue
+            key = key_node.value if isinstance(key_node.value, str) else str(key_node.value)
+            line = key_node.start_mark.line + 1
+            if key in first_seen:
+                self._problem(loc + (key,), key_node, f"duplicate key {key!r} (first given on line {first_seen[key]}); "
+                              "each key may appear once", key)
+                continue
+            first_seen[key] = line
+            self.doc.key_positions[loc + (key,)] = (line, key_node.start_mark.column + 1)
+            out[key] = self.build(value_node, loc + (key,), depth + 1)
+        return out
+
+    def _scalar(self, node: ScalarNode, loc: Location, tag: str) -> Any:
+        text: str = node.value
+        if tag not in _SCALAR_TAGS:
+            self._problem(loc, node, f"tag {_short_tag(tag)!s} is not allowed; specs hold plain data only "
+                          "(mappings, lists, text, numbers, true/false, dates)")
+            return None
+        kind = tag[len(_CORE):]
+        if kind in ("str", "timestamp"):
+            return text
+        if kind == "null":
+            return None
+        if kind == "bool":
+            return text.lower() in ("true", "yes", "on", "y")
+        if kind == "int":
+            return _parse_int(text)
+        if kind == "float":
+            return _parse_float(text)
+        self._problem(loc, node, "binary data is not allowed in a spec")
+        return None
+
+
+def _parse_int(text: str) -> int | float:
+    clean = text.replace("_", "")
+    try:
+        return int(clean, 0)
+    except ValueError:
+        try:
+            return int(clean, 10)
+        except ValueError:
+            return _parse_float(text)
+
+
+def _parse_float(text: str) -> float:
+    clean = text.replace("_", "").lower()
+    if clean in (".nan", "nan"):
+        return math.nan
+    if clean.lstrip("+-") in (".inf", "inf"):
+        return -math.inf if clean.startswith("-") else math.inf
+    return float(clean)
+
+
+def _short_tag(tag: str) -> str:
+    return "!!" + tag[len(_CORE):] if tag.startswith(_CORE) else tag
+
+
+def _dotted(loc: Location) -> str:
+    out = ""
+    for part in loc:
+        if isinstance(part, int):
+            out += f"[{part}]"
+        else:
+            out += ("." if out else "") + str(part)
+    return out
+
+
+def _decode(raw: bytes, path: str) -> str:
+    if b"\x00" in raw[:8192] and not raw.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise InvalidSpec(path, [Problem("", "this is a binary file, not a YAML text spec")])
+    if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise InvalidSpec(path, [Problem("", "the file is UTF-16 encoded; save it as UTF-8")])
+    if raw.startswith(b"\xef\xbb\xbf"):
+        raw = raw[3:]  # a UTF-8 byte-order mark is harmless
+    try:
+        return raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        column = exc.start - (raw.rfind(b"\n", 0, exc.start) + 1) + 1
+        raise InvalidSpec(path, [Problem("", f"the file is not valid UTF-8 (byte 0x{raw[exc.start]:02x}); "
+                                         "save it as UTF-8 text", line, column)]) from None
+
+
+def load_bytes(raw: bytes, path: str) -> Document:
+    """Parse one spec file's bytes; raise :class:`InvalidSpec` with every problem found."""
+    if len(raw) > MAX_FILE_BYTES:
+        raise InvalidSpec(path, [Problem("", f"the file is {len(raw):,} bytes; a spec is at most "
+                                         f"{MAX_FILE_BYTES:,} bytes")])
+    return load_text(_decode(raw, path), path)
+
+
+def load_file(path: str | Path, display: str | None = None) -> Document:
+    """Read and parse a spec file; unreadable files become an :class:`InvalidSpec` too."""
+    shown = display or str(path)
+    try:
+        with open(path, "rb") as handle:
+            raw = handle.read(MAX_FILE_BYTES + 1)
+    except IsADirectoryError:
+        raise InvalidSpec(shown, [Problem("", "is a directory, not a spec file")]) from None
+    except OSError as exc:
+        raise InvalidSpec(shown, [Problem("", f"cannot be read: {exc.strerror or exc}")]) from None
+    return load_bytes(raw, shown)
+
+
+def load_text(text: str, path: str) -> Document:
+    """Parse spec text; one mapping document is expected."""
+    doc = Document(path=path, data=None, source=text)
+    lines = text.splitlines()
+    yaml = YAML(typ="rt", pure=True)
+    try:
+        roots = list(yaml.compose_all(io.StringIO(text)))
+    except MarkedYAMLError as exc:
+        raise InvalidSpec(path, [_syntax_problem(exc, lines)], lines) from None
+    except RecursionError:
+        raise InvalidSpec(path, [Problem("", f"nested too deeply; a spec is at most {MAX_DEPTH} levels deep")],
+                          lines) from None
+    except YAMLError as exc:
+        raise InvalidSpec(path, [Problem("", f"not valid YAML: {exc}")], lines) from None
+    roots = [r for r in roots if r is not None]
+    if not roots:
+        raise InvalidSpec(path, [Problem("", "the file holds no YAML data (empty, blank or only comments); "
+                                         "a spec is a mapping starting with 'id:'")], lines)
+    if len(roots) > 1:
+        mark = roots[1].start_mark
+        raise InvalidSpec(path, [Problem("", f"the file holds {len(roots)} YAML documents; one spec per file, "
+                                         "so remove the '---' separators", mark.line + 1, mark.column + 1)], lines)
+    root = roots[0]
+    builder = _Builder(doc)
+    doc.data = builder.build(root, ())
+    if builder.problems:
+        raise InvalidSpec(path, builder.problems, lines)
+    if not isinstance(doc.data, dict):
+        kind = "a list" if isinstance(doc.data, list) else f"a single value ({doc.data!r})"
+        raise InvalidSpec(path, [Problem("", f"the document is {kind}; a spec is a mapping of keys such as "
+                                         "'id:', 'title:' and 'design:'", root.start_mark.line + 1,
+                                         root.start_mark.column + 1)], lines)
+    return doc
+
+
+def _syntax_problem(exc: MarkedYAMLError, lines: list[str]) -> Problem:
+    mark = exc.problem_mark or exc.context_mark
+    line = mark.line + 1 if mark is not None else None
+    column = mark.column + 1 if mark is not None else None
+    what = exc.problem or exc.context or "syntax error"
+    what = str(what).strip()
+    text = f"YAML syntax error: {what}"
+    if line is not None and 1 <= line <= len(lines) and "\t" in lines[line - 1][: (column or 1) + 1]:
+        text = "a tab character is used for indentation; YAML allows spaces only"
+    elif "\t" in what or "'\\t'" in what:
+        text = "a tab character is used for indentation; YAML allows spaces only"
+    return Problem("", text, line, column)
+
+
+def dump(data: Any, header: str = "") -> str:
+    """Write plain data as block-style YAML text (used by ``new`` and round-trip tests)."""
+    yaml = YAML(typ="rt", pure=True)
+    yaml.default_flow_style = False
+    yaml.indent(mapping=2, sequence=4, offset=2)
+    yaml.width = 100
+    buffer = io.StringIO()
+    if header:
+        buffer.write(header)
+    yaml.dump(data, buffer)
+    return buffer.getvalue()
