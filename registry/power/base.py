@@ -180,6 +180,20 @@ class Family(ABC):
     def power(self, design: DesignBase, n: np.ndarray, effect_size: float | None = None) -> np.ndarray:
         """Power at each analysable n (per group; vectorized), at ``effect_size`` or the design's."""
 
+    @abstractmethod
+    def simulate(
+        self, design: DesignBase, n: int, reps: int, rng: np.random.Generator, distribution: str = "normal"
+    ) -> np.ndarray:
+        """Simulate ``reps`` experiments with ``n`` analysable units (group 1), analyse each with the
+        family's test, and return a boolean array: whether H0 was rejected at ``design.alpha``.
+
+        ``distribution`` names the outcome's shape (``normal``; families may offer more, such as
+        ``lognormal`` or ``counts``) and raises ``ValueError`` for one they do not offer.
+        """
+
+    #: Outcome distributions :meth:`simulate` offers.
+    distributions: ClassVar[tuple[str, ...]] = ("normal",)
+
     def approximate_n(self, design: DesignBase, effect_size: float) -> float:
         """A normal-approximation start for the integer search."""
         from scipy.stats import norm

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+from scipy import stats
 
 from .base import DesignBase, Family
 from .mean_difference import MeanDifference
@@ -44,6 +45,12 @@ class OneSampleT(Family):
         es = self.effect_size(design) if effect_size is None else effect_size
         n = np.asarray(n, dtype=float)
         return t_test_power(es * np.sqrt(n), n - 1, design.alpha, design.alternative)
+
+    def simulate(self, design, n, reps, rng, distribution="normal"):  # type: ignore[override]
+        es = self.effect_size(design)
+        sample = rng.normal(loc=es, scale=1.0, size=(reps, n))
+        p = stats.ttest_1samp(sample, 0.0, axis=1, alternative=design.alternative).pvalue
+        return p < design.alpha
 
     def natural_effect(self, design: DesignBase, effect_size: float) -> dict[str, float]:
         if design.effect.sd is not None:
