@@ -52,10 +52,13 @@ def _type_name(annotation: Any) -> str:
 
 
 def _nested_model(annotation: Any) -> type[BaseModel] | None:
-    for arg in (annotation, *typing.get_args(annotation)):
-        if isinstance(arg, type) and issubclass(arg, BaseModel) and not issubclass(arg, DesignBase):
-            return arg
-        inner = _nested_model(arg) if typing.get_args(arg) else None
+    """The model a field holds (directly, optionally or as list items), except design blocks."""
+    if isinstance(annotation, type):
+        if issubclass(annotation, BaseModel) and not issubclass(annotation, DesignBase):
+            return annotation
+        return None
+    for arg in typing.get_args(annotation):
+        inner = _nested_model(arg)
         if inner is not None:
             return inner
     return None
