@@ -191,7 +191,7 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
         report.add(
             "underpowered", "error", "sample_size.per_group",
             f"planned {planned} {unit}{after} {achieved}, below the target {design.power:g}; "
-            f"{required} {unit} needed ({sample.n_per_group} analysable{_attrition_note(design.attrition)})",
+            f"{required} {unit} needed{_analysable_note(sample.n_per_group, design.attrition)}",
             loc,
         )
     elif planned > required * (1 + config.oversize_margin):
@@ -205,8 +205,8 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
         )
 
 
-def _attrition_note(attrition: float) -> str:
-    return f", enrolled for {attrition:.0%} attrition" if attrition else ""
+def _analysable_note(analysable: int, attrition: float) -> str:
+    return f" ({analysable} analysable, enrolled for {attrition:.0%} attrition)" if attrition else ""
 
 
 def _completeness(report: SpecReport, spec: Spec) -> None:

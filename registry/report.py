@@ -8,6 +8,7 @@ import sys
 from typing import IO, Any
 
 from rich.console import Console
+from rich.padding import Padding
 from rich.table import Table
 from rich.text import Text
 
@@ -76,7 +77,7 @@ def print_findings(out: Console, reports: list[SpecReport], *, show_info: bool =
             if finding.field:
                 head.append(f"  {finding.field}", style="bold")
             out.print(head)
-            out.print(Text("    " + finding.message))
+            out.print(Padding(Text(finding.message), (0, 0, 0, 4)))
             if finding.kind == "invalid" and finding.line and 1 <= finding.line <= len(lines):
                 source = lines[finding.line - 1].rstrip("\r\n").replace("\t", " ")[:160]
                 out.print(Text(f"    {finding.line:>4} | {source}", style="dim"))
