@@ -77,7 +77,7 @@ def print_findings(out: Console, reports: list[SpecReport], *, show_info: bool =
             if finding.field:
                 head.append(f"  {finding.field}", style="bold")
             out.print(head)
-            out.print(Padding(Text(finding.message), (0, 0, 0, 4)))
+            out.print(Padding(Text(finding.message), (0, 0, 0, 4), expand=False))
             if finding.kind == "invalid" and finding.line and 1 <= finding.line <= len(lines):
                 source = lines[finding.line - 1].rstrip("\r\n").replace("\t", " ")[:160]
                 out.print(Text(f"    {finding.line:>4} | {source}", style="dim"))
