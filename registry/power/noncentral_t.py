@@ -24,12 +24,24 @@ def t_test_power(ncp: np.ndarray | float, df: np.ndarray | float, alpha: float, 
     """
     ncp = np.asarray(ncp, dtype=float)
     df = np.asarray(df, dtype=float)
-    if alternative == "two-sided":
-        crit = stats.t.isf(alpha / 2, df)
-        return stats.nct.sf(crit, df, ncp) + stats.nct.cdf(-crit, df, ncp)
-    crit = stats.t.isf(alpha, df)
-    if alternative == "greater":
-        return stats.nct.sf(crit, df, ncp)
-    if alternative == "less":
-        return stats.nct.cdf(-crit, df, ncp)
-    raise ValueError(f"alternative must be 'two-sided', 'greater' or 'less'; got {alternative!r}")
+    if alternative not in ("two-sided", "greater", "less"):
+        raise ValueError(f"alternative must be 'two-sided', 'greater' or 'less'; got {alternative!r}")
+    crit = stats.t.isf(alpha / 2 if alternative == "two-sided" else alpha, df)
+    # P(T < -c | ncp) is computed as P(T > c | -ncp): scipy's lower tail of the noncentral t
+    # returns NaN far from the centre, its upper tail does not.
+    upper = _upper_tail(crit, df, ncp) if alternative != "less" else 0.0
+    lower = _upper_tail(crit, df, -ncp) if alternative != "greater" else 0.0
+    return np.asarray(upper + lower, dtype=float)
+
+
+def _upper_tail(crit: np.ndarray, df: np.ndarray, ncp: np.ndarray) -> np.ndarray:
+    """``P(T > crit)`` for a noncentral t; a normal approximation only where scipy gives NaN."""
+    tail = stats.nct.sf(crit, df, ncp)
+    bad = np.isnan(tail)
+    if np.any(bad):
+        crit_b, df_b, ncp_b = np.broadcast_arrays(crit, df, ncp)
+        # Johnson & Welch (1940) normal approximation to the noncentral t
+        z = (crit_b[bad] * (1 - 1 / (4 * df_b[bad])) - ncp_b[bad]) / np.sqrt(1 + crit_b[bad] ** 2 / (2 * df_b[bad]))
+        tail = np.array(tail, dtype=float, copy=True)
+        tail[bad] = stats.norm.sf(z)
+    return tail
