@@ -206,7 +206,8 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
     try:
         result: SampleSize | PowerAtN = solve_sample_size(design) if n is None else power_at(design, n)
     except InfeasibleDesign as error:
-        raise UsageError(f"the {test} design has no answer ({error.field}): {error.message}") from None
+        where = f" ({error.field})" if error.field != "design" else ""
+        raise UsageError(f"the {test} design has no answer{where}: {error.message}") from None
     sim = None
     if design.simulation is not None:
         try:
