@@ -9,12 +9,15 @@ from __future__ import annotations
 import math
 from collections import defaultdict
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any, Literal
 
 from .config import RegistryConfig
 from .discovery import SpecFile
 from .model import Spec
+from .pilot import InvalidPilot, PilotMissing, read_pilot
 from .power import InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
+from .power.simulate import InvalidSimulation, SimulatedPower, simulate_plan
 from .problems import InvalidSpec
 from .validation import validate_document
 from .yamlio import Document, load_file
@@ -72,6 +75,7 @@ class SpecReport:
     findings: list[Finding] = field(default_factory=list)
     sample: SampleSize | None = None
     at_planned: PowerAtN | None = None
+    simulated: SimulatedPower | None = None
     problems_text: str = ""
 
     @property
@@ -116,6 +120,7 @@ class SpecReport:
             "planned_per_group": self.planned_per_group,
             "achieved_power": self.achieved_power,
             "target_power": self.spec.design.power if self.spec else None,
+            "simulated_power": self.simulated.to_dict() if self.simulated else None,
             "verdict": self.verdict,
             "findings": [f.to_dict() for f in self.findings],
         }
@@ -158,6 +163,8 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
     spec = report.spec
     report.id = spec.id
     _size(report, spec, config)
+    _simulation(report, spec)
+    _pilot(report, spec, spec_file)
     _completeness(report, spec)
     stem = spec_file.path.name.rsplit(".", 1)[0]
     if stem != spec.id:
@@ -207,6 +214,94 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
 
 def _analysable_note(analysable: int, attrition: float) -> str:
     return f" ({analysable} analysable, enrolled for {attrition:.0%} attrition)" if attrition else ""
+
+
+def _simulation(report: SpecReport, spec: Spec) -> None:
+    """Run ``design.simulation`` at the planned analysable n and compare it with the exact power."""
+    design = spec.design
+    if design.simulation is None or report.at_planned is None:
+        return
+    at = report.at_planned
+    loc = ("design", "simulation")
+    try:
+        sim = simulate_plan(design, at.n_per_group)
+    except InvalidSimulation as error:
+        report.add("invalid", "error", "design.simulation", str(error), loc)
+        return
+    assert sim is not None
+    report.simulated = sim
+    unit = design.family.unit
+    report.add(
+        "simulated-power", "info", "design.simulation",
+        f"simulated power at the planned {at.n_per_group} analysable {unit}: {sim.power:.3f} ± "
+        f"{sim.standard_error:.3f} (SE; {sim.reps:,} simulated experiments, {sim.distribution} outcome, "
+        f"seed {sim.seed}); exact power {at.power:.3f}", loc,
+    )
+    if at.power >= design.power and sim.power < design.power - 3 * sim.standard_error:
+        report.add(
+            "simulation-disagrees", "warning", "design.simulation",
+            f"with a {sim.distribution} outcome the simulated power {sim.power:.3f} ± {sim.standard_error:.3f} is "
+            f"more than 3 standard errors below the target {design.power:g}, although the exact calculation "
+            f"gives {at.power:.3f}: the test's assumptions may not hold for this outcome; consider a larger n, "
+            "a transformation or a test suited to the outcome, and ask a statistician", loc,
+        )
+
+
+def _pilot(report: SpecReport, spec: Spec, spec_file: SpecFile) -> None:
+    """Re-read ``design.pilot``: the file must exist, be unchanged, and support the spec's SD."""
+    source = spec.design.pilot
+    if source is None:
+        return
+    path = spec_file.path.parent / source.file
+    shown = (Path(spec_file.display).parent / source.file).as_posix()
+    loc = ("design", "pilot", "file")
+    try:
+        summary = read_pilot(path, source.column, source.confidence, shown=shown)
+    except PilotMissing as error:
+        report.add("pilot-missing", "error", "design.pilot.file",
+                   f"{error}; the SD assumption can no longer be traced to its data. Restore the file or "
+                   "remove design.pilot (with an amendment if data collection has started)", loc)
+        return
+    except InvalidPilot as error:
+        report.add("pilot-invalid", "error", "design.pilot", str(error), loc)
+        return
+    if summary.sha256 != source.sha256:
+        report.add("pilot-changed", "warning", "design.pilot.sha256",
+                   f"{shown} has changed since it was recorded (SHA-256 now {summary.sha256[:12]}..., recorded "
+                   f"{source.sha256[:12]}...); check that the SD still matches the data, then run "
+                   f"'prespec pilot {shown} --column {source.column}' and update design.pilot.sha256",
+                   ("design", "pilot", "sha256"))
+    level = f"{source.confidence:.0%}"
+    about = (f"pilot data {shown} column {source.column!r}: n = {summary.n}, SD {summary.sd:.4g}, one-sided "
+             f"{level} upper limit {summary.sd_upper:.4g} (Browne 1995)")
+    sd = getattr(spec.design.effect, "sd", None)
+    if not isinstance(sd, (int, float)):
+        report.add("pilot-sd", "info", "design.pilot", about + "; the effect states no sd to compare with", loc)
+        return
+    sd_loc = ("design", "effect", "sd")
+    if sd < summary.sd:
+        report.add("sd-below-pilot", "warning", "design.effect.sd",
+                   f"sd {sd:g} is below the pilot SD {summary.sd:.4g} ({about}); the sample size is not "
+                   f"conservative: plan with at least the pilot SD, better its upper limit "
+                   f"{summary.sd_upper:.4g}{_needed_with(spec, summary.sd_upper)}", sd_loc)
+    elif sd < summary.sd_upper:
+        report.add("pilot-sd", "info", "design.effect.sd",
+                   f"sd {sd:g} is between the pilot SD and its upper limit ({about}); planning with the upper "
+                   f"limit{_needed_with(spec, summary.sd_upper)} guards against a pilot SD that is low by chance",
+                   sd_loc)
+    else:
+        report.add("pilot-sd", "info", "design.effect.sd", f"sd {sd:g} is at or above the upper limit ({about})",
+                   sd_loc)
+
+
+def _needed_with(spec: Spec, sd: float) -> str:
+    design = spec.design
+    effect = design.effect.model_copy(update={"sd": sd})
+    try:
+        needed = solve_sample_size(design.model_copy(update={"effect": effect}))
+    except InfeasibleDesign:
+        return ""
+    return f" (which needs {needed.enrolment_per_group} {design.family.unit} enrolled)"
 
 
 def _completeness(report: SpecReport, spec: Spec) -> None:

@@ -86,7 +86,7 @@ def design_from_params(test: str, **params: Any) -> DesignBase:
 
 def _unknown_parameter(key: str, allowed: list[str]) -> str:
     close = difflib.get_close_matches(key, allowed, n=1)
-    hint = f"; did you mean {close[0]!r}?" if close else ""
+    hint = f"; did you mean {close[0]!r}?" if close else "."
     return f"unknown parameter {key!r} for this design{hint} Allowed: {', '.join(allowed)}"
 
 

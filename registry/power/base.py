@@ -13,7 +13,10 @@ from abc import ABC, abstractmethod
 from typing import Any, ClassVar, Literal
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+from pydantic import BaseModel, ConfigDict, field_validator, model_validator
+
+from .assumptions import PilotSource, SimulationPlan
+from .fields import free, locked
 
 __all__ = [
     "Alternative",
@@ -31,20 +34,6 @@ Alternative = Literal["two-sided", "greater", "less"]
 
 #: The largest sample size per group prespec will report; beyond it a design is infeasible.
 MAX_N = 100_000_000
-
-
-def locked(**kwargs: Any) -> Any:
-    """A field that defines the design: changing it after data collection starts is drift."""
-    extra = dict(kwargs.pop("json_schema_extra", None) or {})
-    extra["x-locked"] = True
-    return Field(json_schema_extra=extra, **kwargs)
-
-
-def free(**kwargs: Any) -> Any:
-    """A field that may change at any time (status, notes, contacts)."""
-    extra = dict(kwargs.pop("json_schema_extra", None) or {})
-    extra["x-locked"] = False
-    return Field(json_schema_extra=extra, **kwargs)
 
 
 class InfeasibleDesign(ValueError):
@@ -113,6 +102,12 @@ class DesignBase(BaseModel):
         max_length=5000,
         description="Where the variability (SD) assumption comes from, e.g. earlier control animals.",
     )
+    pilot: PilotSource | None = locked(
+        default=None, description="Pilot or control data the SD comes from; check re-reads it (docs/pilot-data.md)."
+    )
+    simulation: SimulationPlan | None = free(
+        default=None, description="Also estimate power by simulation at the planned n (docs/simulation.md)."
+    )
 
     @field_validator("alpha", "power")
     @classmethod
@@ -130,6 +125,11 @@ class DesignBase(BaseModel):
             raise ValueError(
                 f"power ({self.power:g}) must be greater than alpha ({self.alpha:g}); "
                 "a test has power alpha even when there is no effect"
+            )
+        if self.simulation is not None and self.simulation.distribution not in self.family.distributions:
+            raise ValueError(
+                f"simulation.distribution {self.simulation.distribution!r} is not offered for {self.test}; "
+                f"choose one of {', '.join(self.family.distributions)}"
             )
         return self
 
@@ -196,10 +196,10 @@ class Family(ABC):
 
     def approximate_n(self, design: DesignBase, effect_size: float) -> float:
         """A normal-approximation start for the integer search."""
-        from scipy.stats import norm
+        from scipy.special import ndtri  # the normal quantile, without scipy.stats' per-call overhead
 
-        z_alpha = norm.isf(design.alpha / (2 if design.alternative == "two-sided" else 1))
-        z_beta = norm.ppf(design.power)
+        z_alpha = -ndtri(design.alpha / (2 if design.alternative == "two-sided" else 1))
+        z_beta = ndtri(design.power)
         per = (z_alpha + z_beta) ** 2 / max(effect_size**2, 1e-300)
         return per * (1 + 1 / design.allocation_ratio) if self.groups == 2 else per
 

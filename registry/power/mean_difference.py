@@ -31,6 +31,13 @@ class MeanDifference(EffectBase):
         assert self.difference is not None and self.sd is not None
         return self.difference / self.sd
 
+    def natural_scale(self) -> tuple[float, float]:
+        """``(difference, sd)`` in outcome units; ``(d, 1)`` (SD units) when the effect is given as d."""
+        if self.d is not None:
+            return self.d, 1.0
+        assert self.difference is not None and self.sd is not None
+        return self.difference, self.sd
+
 
 def _require_difference_or_d(effect: EffectBase, have_spread: bool, spread: str) -> None:
     """Shared rule: d alone, or difference with a spread; never both, never half."""

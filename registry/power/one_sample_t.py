@@ -8,6 +8,7 @@ from scipy import stats
 from .base import DesignBase, Family
 from .mean_difference import MeanDifference
 from .noncentral_t import t_test_power
+from .shapes import SHAPES, baseline_mean, draw
 
 __all__ = ["OneSampleT"]
 
@@ -37,6 +38,7 @@ class OneSampleT(Family):
     groups = 1
     effect_model = MeanDifference
     example = {"difference": 2.0, "sd": 4.0}
+    distributions = SHAPES
 
     def effect_size(self, design: DesignBase) -> float:
         return design.effect.standardized()
@@ -47,9 +49,12 @@ class OneSampleT(Family):
         return t_test_power(es * np.sqrt(n), n - 1, design.alpha, design.alternative)
 
     def simulate(self, design, n, reps, rng, distribution="normal"):  # type: ignore[override]
-        es = self.effect_size(design)
-        sample = rng.normal(loc=es, scale=1.0, size=(reps, n))
-        p = stats.ttest_1samp(sample, 0.0, axis=1, alternative=design.alternative).pvalue
+        """Draw ``n`` outcomes with mean ``baseline + difference`` and SD ``sd`` (the shape from
+        :mod:`registry.power.shapes`), test them against ``baseline`` with scipy's one-sample t-test."""
+        difference, sd = design.effect.natural_scale()
+        null = baseline_mean(design, distribution)
+        sample = draw(rng, distribution, np.full(n, null + difference), sd, reps)
+        p = stats.ttest_1samp(sample, null, axis=1, alternative=design.alternative).pvalue
         return p < design.alpha
 
     def natural_effect(self, design: DesignBase, effect_size: float) -> dict[str, float]:

@@ -52,6 +52,15 @@ class PairedDifference(EffectBase):
         assert self.difference is not None
         return self.difference / self.sd_of_differences()
 
+    def natural_scale(self) -> tuple[float, float]:
+        """``(difference, SD of differences)``; ``(d, 1)`` when the effect is given as d."""
+        if self.d is not None:
+            return self.d, 1.0
+        assert self.difference is not None
+        sd = self.sd_of_differences()
+        assert sd is not None
+        return self.difference, sd
+
 
 class PairedT(OneSampleT):
     """Power of the paired t-test on ``n`` pairs: ``df = n - 1``, ``ncp = d_z * sqrt(n)``.
@@ -74,6 +83,10 @@ class PairedT(OneSampleT):
     method = "exact power from the noncentral t distribution on the within-pair differences, df = n - 1"
     unit = "pairs"
     effect_model = PairedDifference
+    # The simulated outcome is the within-pair difference. Skewed shapes are not offered: a skewed
+    # paired design is defined by each condition's distribution and their dependence, which the
+    # effect block (differences only, or two SDs and a correlation) does not pin down.
+    distributions = ("normal",)
     example = {"difference": 2.0, "sd": 4.0}
 
     def natural_effect(self, design, effect_size):  # type: ignore[override]

@@ -10,6 +10,7 @@ from scipy import stats
 from .base import DesignBase, Family
 from .mean_difference import MeanDifference
 from .noncentral_t import t_test_power
+from .shapes import SHAPES, baseline_mean, draw
 
 __all__ = ["TwoSampleT"]
 
@@ -42,6 +43,7 @@ class TwoSampleT(Family):
     groups = 2
     effect_model = MeanDifference
     example = {"difference": 4.0, "sd": 5.0}
+    distributions = SHAPES
 
     def effect_size(self, design: DesignBase) -> float:
         return design.effect.standardized()
@@ -54,11 +56,16 @@ class TwoSampleT(Family):
         return t_test_power(ncp, n1 + n2 - 2, design.alpha, design.alternative)
 
     def simulate(self, design, n, reps, rng, distribution="normal"):  # type: ignore[override]
-        es = self.effect_size(design)
+        """Group 1: ``n`` outcomes with mean ``baseline``; group 2: ``ceil(ratio * n)`` with mean
+        ``baseline + difference``; both with SD ``sd`` and the shape from :mod:`registry.power.shapes`.
+        Each replicate is analysed with scipy's pooled two-sample t-test (group 2 minus group 1)."""
+        difference, sd = design.effect.natural_scale()
+        base = baseline_mean(design, distribution)
         n2 = self.group_sizes(design, n)[1]
-        control = rng.normal(0.0, 1.0, size=(reps, n))
-        treated = rng.normal(es, 1.0, size=(reps, n2))
-        p = stats.ttest_ind(treated, control, axis=1, equal_var=True, alternative=design.alternative).pvalue
+        means = np.concatenate([np.full(n, base), np.full(n2, base + difference)])
+        outcomes = draw(rng, distribution, means, sd, reps)
+        p = stats.ttest_ind(outcomes[:, n:], outcomes[:, :n], axis=1, equal_var=True,
+                            alternative=design.alternative).pvalue
         return p < design.alpha
 
     def natural_effect(self, design: DesignBase, effect_size: float) -> dict[str, float]:

@@ -1,0 +1,149 @@
+"""``prespec size``: answers checked against statsmodels, JSON keys, --n mode and exit-2 errors."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+from statsmodels.stats.power import TTestIndPower, TTestPower
+
+from registry.checks import CAUTION
+
+SAMPLE_KEYS = {"test", "n_per_group", "n_total", "achieved_power", "target_power", "alpha", "alternative",
+               "effect_size", "symbol", "group_sizes", "enrolment_per_group", "enrolment_total", "unit", "method",
+               "reference", "events", "notes", "simulation", "caution"}
+POWER_KEYS = {"test", "n_per_group", "n_total", "power", "alpha", "alternative", "target_power", "effect_size",
+              "symbol", "minimum_detectable_effect", "minimum_detectable_natural", "group_sizes", "unit", "events",
+              "notes", "simulation", "caution"}
+
+
+def _smallest_two_sample(d, alpha=0.05, power=0.8, ratio=1.0, alternative="two-sided"):
+    # statsmodels TTestIndPower solves for a real n1; the smallest whole n1 is its ceiling.
+    return math.ceil(TTestIndPower().solve_power(effect_size=d, nobs1=None, alpha=alpha, power=power, ratio=ratio,
+                                                 alternative=alternative) - 1e-9)
+
+
+def test_json_keys_and_answer(run):
+    result = run("size", "two-sample-t", "--d", "0.5", "--json")
+    assert result.status == 0, result.err
+    data = result.json()
+    assert set(data) == SAMPLE_KEYS
+    # statsmodels TTestIndPower; also Cohen (1988) Table 2.4.1: d = 0.5, power 0.80 -> 64 per group (from memory)
+    assert data["n_per_group"] == _smallest_two_sample(0.5) == 64
+    assert data["n_total"] == 128 and data["group_sizes"] == [64, 64]
+    assert data["achieved_power"] >= 0.8
+    assert data["simulation"] is None and data["caution"] == CAUTION
+
+
+@pytest.mark.parametrize("argv, expected", [
+    # (options, statsmodels TTestIndPower arguments)
+    (["--difference", "4", "--sd", "5"], dict(d=0.8)),
+    (["--d", "0.8", "--alpha", "0.01", "--power", "0.9"], dict(d=0.8, alpha=0.01, power=0.9)),
+    (["--d", "0.6", "--ratio", "2"], dict(d=0.6, ratio=2.0)),
+    (["--d", "0.4", "--alternative", "greater"], dict(d=0.4, alternative="larger")),
+    (["--d", "-0.4", "--alternative", "less"], dict(d=-0.4, alternative="smaller")),
+])
+def test_two_sample_matches_statsmodels(run, argv, expected):
+    data = run("size", "two-sample-t", *argv, "--json").json()
+    assert data["n_per_group"] == _smallest_two_sample(**expected)
+    ratio = expected.get("ratio", 1.0)
+    assert data["group_sizes"] == [data["n_per_group"], math.ceil(ratio * data["n_per_group"])]
+
+
+def test_attrition_through_param(run):
+    data = run("size", "two-sample-t", "--d", "0.5", "--param", "attrition=0.1", "--json").json()
+    # enrolment = ceil(n / (1 - attrition)) (docs/spec-format.md)
+    assert data["n_per_group"] == 64 and data["enrolment_per_group"] == math.ceil(64 / 0.9)
+    assert data["enrolment_total"] == 2 * math.ceil(64 / 0.9)
+
+
+def test_one_group_designs_count_units(run):
+    data = run("size", "one-sample-t", "--d", "0.5", "--json").json()
+    # statsmodels TTestPower (one-sample t)
+    expected = math.ceil(TTestPower().solve_power(effect_size=0.5, nobs=None, alpha=0.05, power=0.8))
+    assert data["n_per_group"] == data["n_total"] == expected
+    assert data["group_sizes"] == [expected] and data["unit"] == "units"
+
+
+def test_paired_pairs_from_two_sds_and_correlation(run):
+    result = run("size", "paired-t", "--difference", "10", "--param", "sd1=30", "--param", "sd2=30",
+                 "--param", "correlation=0.7", "--json")
+    data = result.json()
+    dz = 10 / math.sqrt(30**2 + 30**2 - 2 * 0.7 * 30 * 30)  # SD of differences, Cohen (1988) 2.3.5
+    assert data["n_per_group"] == data["n_total"] == math.ceil(TTestPower().solve_power(dz, None, 0.05, 0.8))
+    assert data["unit"] == "pairs"
+    human = run("size", "paired-t", "--difference", "10", "--param", "sd1=30", "--param", "sd2=30",
+                "--param", "correlation=0.7")
+    assert f"{data['n_per_group']} pairs" in human.out
+
+
+def test_power_at_n(run):
+    data = run("size", "two-sample-t", "--d", "0.5", "--n", "40", "--json").json()
+    assert set(data) == POWER_KEYS
+    # statsmodels TTestIndPower.power and solve_power(effect_size=None)
+    assert data["power"] == pytest.approx(TTestIndPower().power(0.5, 40, 0.05), rel=1e-9)
+    mde = TTestIndPower().solve_power(effect_size=None, nobs1=40, alpha=0.05, power=0.8)
+    assert data["minimum_detectable_effect"] == pytest.approx(mde, rel=1e-6)
+
+
+def test_power_at_n_natural_units(run):
+    data = run("size", "two-sample-t", "--difference", "4", "--sd", "5", "--n", "40", "--json").json()
+    mde = TTestIndPower().solve_power(effect_size=None, nobs1=40, alpha=0.05, power=0.8)
+    assert data["minimum_detectable_natural"]["difference"] == pytest.approx(5 * mde, rel=1e-6)
+
+
+def test_human_output(run):
+    result = run("size", "two-sample-t", "--difference", "4", "--sd", "5", "--param", "attrition=0.1")
+    assert result.status == 0
+    for text in ("Sample size: Two-sample t-test", "d = 0.8", "26 per group x 2 groups = 52 in total",
+                 "29 per group x 2 groups = 58 in total, for 10% attrition", "method", "reference", "Cohen"):
+        assert text in result.out
+    assert result.out.rstrip().endswith(f"Note: {CAUTION}")
+
+
+def test_simulation_is_reported_and_reproducible(run):
+    argv = ("size", "two-sample-t", "--d", "0.8", "--simulate", "4000", "--seed", "7", "--json")
+    first, second = run(*argv).json(), run(*argv).json()
+    assert first == second
+    sim = first["simulation"]
+    assert sim["reps"] == 4000 and sim["seed"] == 7 and sim["distribution"] == "normal"
+    # Monte Carlo estimate vs the exact power (statsmodels) within 4 standard errors
+    exact = TTestIndPower().power(0.8, first["n_per_group"], 0.05)
+    assert abs(sim["power"] - exact) < 4 * sim["standard_error"]
+
+
+def test_skewed_simulation_from_cli(run):
+    result = run("size", "two-sample-t", "--difference", "4", "--sd", "5", "--distribution", "lognormal",
+                 "--param", "baseline_mean=10", "--simulate", "1000", "--json")
+    assert result.status == 0, result.err
+    assert result.json()["simulation"]["distribution"] == "lognormal"
+
+
+@pytest.mark.parametrize("argv, message", [
+    (["two-sampl-t", "--d", "0.5"], "did you mean 'two-sample-t'?"),
+    (["two-sample-t", "--d", "0"], "d must not be 0"),
+    (["two-sample-t", "--d", "0.5", "--alternative", "less"], "alternative 'less' tests for a decrease"),
+    (["two-sample-t", "--d", "0.5", "--power", "0.01"], "must be greater than alpha"),
+    (["two-sample-t", "--d", "0.5", "--alpha", "5%"], "write 0.05 for 5%"),
+    (["two-sample-t", "--d", "abc"], "must be a number; got 'abc'"),
+    (["two-sample-t", "--d", "0.5", "--param", "sdd=3"], "unknown parameter 'sdd'"),
+    (["two-sample-t", "--p1", "0.5"], "unknown parameter 'p1'"),
+    (["two-sample-t", "--d", "0.5", "--param", "d=0.4"], "d is given twice"),
+    (["two-sample-t", "--d", "0.5", "--param", "oops"], "expected NAME=VALUE"),
+    (["two-sample-t"], "give the effect as difference with sd"),
+    (["two-sample-t", "--sd", "5"], "difference is missing"),
+    (["two-sample-t", "--d", "0.5", "--n", "1"], "n must be at least 2"),
+    (["two-sample-t", "--d", "0.0001"], "too small"),
+    (["two-sample-t", "--d", "0.5", "--simulate", "10"], "--simulate REPS must be between 100"),
+    (["two-sample-t", "--d", "0.5", "--distribution", "lognormal"], "baseline_mean"),
+    (["two-sample-t", "--d", "0.5", "--distribution", "gamma"], "choose one of normal, lognormal, counts"),
+    (["paired-t", "--d", "0.5", "--distribution", "counts"], "not offered for paired-t"),
+    (["two-sample-t", "--difference", "1", "--sd", "1", "--distribution", "counts",
+      "--param", "baseline_mean=5"], "counts cannot have these means and this SD"),
+    (["two-sample-t", "--d", "0.5", "--param", "baseline_mean=5"], "add --simulate"),
+])
+def test_bad_requests_exit_2_with_a_message(run, argv, message):
+    result = run("size", *argv)
+    assert result.status == 2
+    assert message in result.err
+    assert "Traceback" not in result.err and result.out == ""
