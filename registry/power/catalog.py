@@ -8,9 +8,16 @@ from typing import Annotated, Literal, Union
 from pydantic import Field, create_model
 
 from .base import DesignBase, Family, locked
+from .chi_square import ChiSquare
+from .correlation import Correlation
+from .linear_regression import LinearRegression
+from .one_proportion import OneProportion
 from .one_sample_t import OneSampleT
+from .one_way_anova import OneWayAnova
 from .paired_t import PairedT
+from .two_proportions import TwoProportions
 from .two_sample_t import TwoSampleT
+from .welch_t import WelchT
 
 __all__ = ["FAMILIES", "family_names", "get_family", "DesignUnion", "UnknownFamily"]
 
@@ -19,6 +26,7 @@ FAMILIES: tuple[Family, ...] = (
     OneSampleT(),
     PairedT(),
     TwoSampleT(),
+    WelchT(), OneWayAnova(), TwoProportions(), OneProportion(), Correlation(), ChiSquare(), LinearRegression(),
 )
 
 _BY_NAME = {family.name: family for family in FAMILIES}

@@ -11,9 +11,11 @@ from scipy import optimize
 from .base import MAX_N, DesignBase, Family, InfeasibleDesign
 from .results import PowerAtN, SampleSize
 
-__all__ = ["smallest_n", "solve_sample_size", "power_at", "minimum_effect", "enrolment"]
+__all__ = ["smallest_n", "smallest_n_from_which", "solve_sample_size", "power_at", "minimum_effect", "enrolment"]
 
 _BLOCK = 8  # candidates evaluated at once around the normal-approximation start
+_SCAN_LIMIT = 5_000_000  # largest n a non-monotone family's exhaustive scan may reach
+_SCAN_CHUNK = 100_000  # candidates evaluated per vectorized call during that scan
 
 
 def enrolment(n: int, attrition: float) -> int:
@@ -70,6 +72,40 @@ def smallest_n(
     return int(cand[i]), float(p[i])
 
 
+def smallest_n_from_which(
+    power_of: Callable[[np.ndarray], np.ndarray], target: float, bound: int, lo: int
+) -> tuple[int, int | None, int]:
+    """For power that is not monotone in n (exact tests on discrete data): scan every n in
+    ``[lo, bound]`` and return ``(stable, first, bound)``: the smallest n from which every n up
+    to the bound reaches ``target``, and the first n reaching it if that is smaller, else None.
+
+    ``bound`` is where a smooth approximation puts power far above the target; the scan is
+    extended (doubling) until the stable n lies in the lower two thirds of the scanned range,
+    so every n from the answer to at least 1.5 times the answer was checked and reaches the target.
+    """
+    first: int | None = None
+    last_failure = lo - 1
+    scanned = lo - 1
+    while True:
+        while scanned < bound:
+            cand = np.arange(scanned + 1, min(bound, scanned + _SCAN_CHUNK) + 1)
+            reached = power_of(cand) >= target
+            if first is None and reached.any():
+                first = int(cand[np.argmax(reached)])
+            if not reached.all():
+                last_failure = int(cand[len(cand) - 1 - np.argmax(~reached[::-1])])
+            scanned = int(cand[-1])
+        stable = last_failure + 1
+        if stable <= lo + (bound - lo) * 2 // 3:
+            return stable, (first if first is not None and first < stable else None), bound
+        if bound >= _SCAN_LIMIT:
+            raise InfeasibleDesign(
+                f"power does not settle above the target below n = {_SCAN_LIMIT:,}; "
+                "the effect is too small for an exact discrete test"
+            )
+        bound = min(_SCAN_LIMIT, bound * 2)
+
+
 def _checked_effect(family: Family, design: DesignBase) -> float:
     es = family.effect_size(design)
     family.check_direction(design, es)
@@ -85,7 +121,11 @@ def solve_sample_size(design: DesignBase) -> SampleSize:
         raise InfeasibleDesign(
             f"the effect ({family.symbol} = {es:.4g}) is too small: more than {MAX_N:,} per group would be needed"
         )
-    n, achieved = smallest_n(lambda n: family.power(design, n, es), design.power, start, family.min_n)
+    notes: tuple[str, ...] = ()
+    if family.monotone:
+        n, achieved = smallest_n(lambda n: family.power(design, n, es), design.power, start, family.min_n)
+    else:
+        n, achieved, notes = _settled_n(family, design, es, start)
     sizes = family.group_sizes(design, n)
     enrolled = tuple(enrolment(g, design.attrition) for g in sizes)
     return SampleSize(
@@ -104,7 +144,29 @@ def solve_sample_size(design: DesignBase) -> SampleSize:
         unit=family.unit,
         method=family.method,
         reference=family.reference,
+        notes=notes,
     )
+
+
+def _settled_n(family: Family, design: DesignBase, es: float, start: float) -> tuple[int, float, tuple[str, ...]]:
+    """Non-monotone power: the smallest n from which every larger n reaches the target.
+
+    The scan bound is where the family's smooth approximation gives power
+    ``1 - (1 - target) / 4`` (0.95 for a target of 0.80), at least twice the approximate n:
+    the saw-tooth of exact power around the smooth curve shrinks as n grows, and at that bound
+    the smooth curve is several saw-tooth amplitudes above the target.
+    """
+    high = design.model_copy(update={"power": 1 - (1 - design.power) / 4})
+    bound = int(min(max(family.approximate_n(high, es), 2 * start, family.min_n + 64), _SCAN_LIMIT)) + 1
+    power_of = lambda n: family.power(design, n, es)  # noqa: E731
+    n, first, scanned = smallest_n_from_which(power_of, design.power, bound, family.min_n)
+    achieved = float(power_of(np.array([n]))[0])
+    note = (f"exact power is not monotone in n: {n} is the smallest n from which every larger n "
+            f"(checked up to {scanned:,}) reaches the target power")
+    if first is not None:
+        note += (f"; n = {first} already reaches it (power {float(power_of(np.array([first]))[0]):.4f}) "
+                 "but some n between fall below")
+    return n, achieved, (note,)
 
 
 def minimum_effect(design: DesignBase, n: int) -> float | None:
