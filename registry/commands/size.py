@@ -186,7 +186,7 @@ def _build(test: str, params: dict[str, Any], simulate: int | None, seed: int | 
         block.update(sim_extra)
         block["reps"] = simulate
         block["seed"] = DEFAULT_SEED if seed is None else seed
-        block["distribution"] = distribution or "normal"
+        block["distribution"] = distribution
         params["simulation"] = block
     elif sim_extra:
         raise UsageError(f"{', '.join(sim_extra)} only matters for a simulation; add --simulate or --distribution")

@@ -35,9 +35,10 @@ class SimulationPlan(BaseModel):
         default=DEFAULT_SEED, ge=0, le=2**63 - 1,
         description="Seed of the random numbers: the same seed gives the same simulated power.",
     )
-    distribution: str = free(
-        default="normal", min_length=1, max_length=40,
-        description="Shape of the simulated outcome: normal, or one the family offers "
+    distribution: str | None = free(
+        default=None, min_length=1, max_length=40,
+        description="Shape of the simulated outcome; by default the family's own (normal for the t-tests, "
+        "binary for proportions), or another the family offers "
         "(lognormal and counts for one-sample-t and two-sample-t; see docs/simulation.md).",
     )
     baseline_mean: float | None = free(

@@ -126,7 +126,8 @@ class DesignBase(BaseModel):
                 f"power ({self.power:g}) must be greater than alpha ({self.alpha:g}); "
                 "a test has power alpha even when there is no effect"
             )
-        if self.simulation is not None and self.simulation.distribution not in self.family.distributions:
+        if (self.simulation is not None and self.simulation.distribution is not None
+                and self.simulation.distribution not in self.family.distributions):
             raise ValueError(
                 f"simulation.distribution {self.simulation.distribution!r} is not offered for {self.test}; "
                 f"choose one of {', '.join(self.family.distributions)}"

@@ -79,7 +79,7 @@ def simulated_power(
     *,
     reps: int = DEFAULT_REPS,
     seed: int = DEFAULT_SEED,
-    distribution: str = "normal",
+    distribution: str | None = None,
     progress: Callable[[int, int], None] | None = None,
     chunk: int | None = None,
 ) -> SimulatedPower:
@@ -90,6 +90,8 @@ def simulated_power(
     Raises :class:`InvalidSimulation` (a ``ValueError``) for a request the family cannot simulate.
     """
     family = design.family
+    if distribution is None:
+        distribution = family.distributions[0]  # the family's own outcome (normal, binary, ...)
     if distribution not in family.distributions:
         raise InvalidSimulation(f"the {family.name} simulator offers {', '.join(family.distributions)}; "
                                 f"got {distribution!r}")
