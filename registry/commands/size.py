@@ -293,9 +293,10 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
     if result.events is not None:
         rows.append(("events", f"{result.events:,}"))
     if isinstance(result, SampleSize):
-        rows.append(("power", f"{result.achieved_power:.4f} (exact; the smallest n reaching {result.target_power:g})"))
+        rows.append(("power", f"{result.achieved_power:.4f} ({_kind(design)}; the smallest n reaching "
+                              f"{result.target_power:g})"))
     else:
-        rows.append(("power", f"{result.power:.4f} (exact)"))
+        rows.append(("power", f"{result.power:.4f} ({_kind(design)})"))
         if result.minimum_detectable_effect is None:
             rows.append(("detectable", f"no effect reaches power {result.target_power:g} at this n"))
         else:
@@ -317,3 +318,7 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
         out.print(f"  {label:<{width}}  {text}", soft_wrap=True)
     out.print()
     out.print(f"Note: {CAUTION}", soft_wrap=True)
+
+
+def _kind(design: DesignBase) -> str:
+    return "exact" if design.family.exact else "normal approximation"

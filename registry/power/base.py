@@ -166,6 +166,8 @@ class Family(ABC):
     effect_model: ClassVar[type[EffectBase]]
     #: Smallest analysable n per group the method is defined for.
     min_n: ClassVar[int] = 2
+    #: Whether :meth:`power` is exact for the test's model (False for normal approximations).
+    exact: ClassVar[bool] = True
     #: Whether power never decreases with n (False for exact discrete tests).
     monotone: ClassVar[bool] = True
     #: An illustrative ``design.effect`` block for ``prespec new`` templates.

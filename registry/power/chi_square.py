@@ -43,6 +43,7 @@ class ChiSquare(Family):
     """
 
     name = "chi-square"
+    exact = False  # the noncentral chi-square is the large-sample distribution of the statistic
     title = "Chi-square test (goodness of fit or contingency table)"
     method = "noncentral chi-square approximation, lambda = w^2 N"
     reference = (

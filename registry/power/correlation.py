@@ -57,6 +57,7 @@ class Correlation(Family):
     """
 
     name = "correlation"
+    exact = False
     title = "Pearson correlation (Fisher z test)"
     method = "normal approximation on Fisher's z = atanh(r) with standard error 1 / sqrt(n - 3)"
     reference = (

@@ -97,6 +97,7 @@ class TwoProportions(Family):
     """
 
     name = "two-proportions"
+    exact = False
     title = "Two independent proportions (z test)"
     method = "normal approximation: pooled variance under H0 (Fleiss), optional continuity correction, or arcsine"
     reference = (
