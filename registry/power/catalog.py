@@ -8,8 +8,13 @@ from typing import Annotated, Literal, Union
 from pydantic import Field, create_model
 
 from .base import DesignBase, Family, locked
+from .equivalence_t import EquivalenceT
+from .log_rank import LogRank
+from .mann_whitney import MannWhitney
+from .noninferiority_t import NonInferiorityT
 from .one_sample_t import OneSampleT
 from .paired_t import PairedT
+from .signed_rank import SignedRank
 from .two_sample_t import TwoSampleT
 
 __all__ = ["FAMILIES", "family_names", "get_family", "DesignUnion", "UnknownFamily"]
@@ -19,6 +24,11 @@ FAMILIES: tuple[Family, ...] = (
     OneSampleT(),
     PairedT(),
     TwoSampleT(),
+    LogRank(),
+    MannWhitney(),
+    SignedRank(),
+    EquivalenceT(),
+    NonInferiorityT(),
 )
 
 _BY_NAME = {family.name: family for family in FAMILIES}

@@ -45,20 +45,31 @@ def simulated_power(
     *,
     reps: int = DEFAULT_REPS,
     seed: int = DEFAULT_SEED,
-    distribution: str = "normal",
+    distribution: str | None = None,
     progress: Callable[[int, int], None] | None = None,
 ) -> SimulatedPower:
     """Power of ``design`` at ``n`` by simulating ``reps`` experiments (seeded, reproducible).
 
-    ``progress(done, total)`` is called after each chunk, for a progress bar on long runs.
+    ``distribution`` defaults to the family's choice for this design (``normal``, or the
+    distribution a rank-test design assumes). Each simulated test runs at the per-test alpha
+    (``alpha / k`` with a multiplicity block). ``progress(done, total)`` is called after each
+    chunk, for a progress bar on long runs.
     """
     family = design.family
+    if design.cluster is not None:
+        raise ValueError(
+            "simulating clustered designs is not offered: the simulators draw independent units. "
+            "Simulate the design without its cluster block at n / design effect units per group"
+        )
+    if distribution is None:
+        distribution = family.default_distribution(design)
     if distribution not in family.distributions:
         raise ValueError(f"the {family.name} simulator offers {', '.join(family.distributions)}; "
                          f"got {distribution!r}")
     if reps < 1:
         raise ValueError(f"reps must be at least 1; got {reps}")
     rng = np.random.default_rng(seed)
+    design = design.as_tested()
     per_rep = max(1, sum(family.group_sizes(design, n)))
     chunk = max(1, min(reps, _CHUNK_CELLS // per_rep))
     rejected = 0
