@@ -148,9 +148,7 @@ class MannWhitney(Family):
     def notes(self, design: DesignBase) -> tuple[str, ...]:
         if design.effect.p_superiority is not None:
             return ("Noether's formula is a large-sample normal approximation; check small sizes by simulation",)
-        return (f"sized by the asymptotic relative efficiency for a {design.effect.distribution} outcome "
-                f"({design.effect.efficiency:.4f}); ARE is a large-sample result, so the size is approximate in "
-                "small samples: check it by simulation with the rank test",)
+        return (design.effect.caveat(f"a {design.effect.distribution} outcome"),)
 
     def default_distribution(self, design: DesignBase) -> str:
         return design.effect.distribution

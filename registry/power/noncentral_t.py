@@ -26,10 +26,26 @@ def t_test_power(ncp: np.ndarray | float, df: np.ndarray | float, alpha: float, 
     df = np.asarray(df, dtype=float)
     if alternative == "two-sided":
         crit = stats.t.isf(alpha / 2, df)
-        return stats.nct.sf(crit, df, ncp) + stats.nct.cdf(-crit, df, ncp)
+        return _upper(crit, df, ncp) + _upper(crit, df, -ncp)
     crit = stats.t.isf(alpha, df)
     if alternative == "greater":
-        return stats.nct.sf(crit, df, ncp)
+        return _upper(crit, df, ncp)
     if alternative == "less":
-        return stats.nct.cdf(-crit, df, ncp)
+        return _upper(crit, df, -ncp)
     raise ValueError(f"alternative must be 'two-sided', 'greater' or 'less'; got {alternative!r}")
+
+
+def _upper(crit: np.ndarray, df: np.ndarray, ncp: np.ndarray) -> np.ndarray:
+    """``P(T > crit)`` for a noncentral t (``P(T < -crit)`` is this with ``-ncp``), ``crit > 0``.
+
+    scipy's noncentral t returns NaN far out in a tail for some (df, ncp). There the tail is
+    bounded by ``P(Z + ncp > 0) = Phi(ncp)``, since ``T > crit > 0`` needs ``Z + ncp > 0``; when
+    that bound is negligible the tail is 0, otherwise the complement ``1 - cdf`` is used.
+    """
+    p = stats.nct.sf(crit, df, ncp)
+    bad = np.isnan(p)
+    if np.any(bad):
+        bound = stats.norm.cdf(ncp)
+        fallback = np.where(bound < 1e-15, 0.0, 1 - stats.nct.cdf(crit, df, ncp))
+        p = np.where(bad, fallback, p)
+    return p

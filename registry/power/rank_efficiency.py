@@ -70,6 +70,15 @@ class RankShift(EffectBase):
     def efficiency(self) -> float:
         return ARE[self.distribution]
 
+    def caveat(self, what: str) -> str:
+        """The note every ARE-based size carries, stronger where ARE is known to be reached slowly."""
+        text = (f"sized by the asymptotic relative efficiency for {what} ({self.efficiency:.4f}); ARE is a "
+                "large-sample result, so the size is approximate: confirm it by simulation with the rank test")
+        if self.distribution in ("laplace", "uniform"):
+            text += (f". For {self.distribution} outcomes the rank tests reach their ARE slowly and the real power "
+                     "at this n is below the target, the more so the smaller n; prefer a simulated size")
+        return text
+
 
 def t_equivalent_n(n: np.ndarray, efficiency: float) -> np.ndarray:
     """The t-test n a rank test with ``n`` units is worth: ``floor(n x ARE)``.

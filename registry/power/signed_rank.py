@@ -81,9 +81,7 @@ class SignedRank(Family):
         return {"d": effect_size}
 
     def notes(self, design: DesignBase) -> tuple[str, ...]:
-        return (f"sized by the asymptotic relative efficiency for {design.effect.distribution} differences "
-                f"({design.effect.efficiency:.4f}); ARE is a large-sample result, so the size is approximate in "
-                "small samples: check it by simulation with the rank test",)
+        return (design.effect.caveat(f"{design.effect.distribution} differences"),)
 
     def default_distribution(self, design: DesignBase) -> str:
         return design.effect.distribution
