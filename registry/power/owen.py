@@ -5,38 +5,44 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import integrate, stats
+from scipy import special, stats
 
 __all__ = ["owens_q", "tost_power"]
 
 
-def owens_q(df: float, t: float, delta: float, a: float, b: float) -> float:
-    """Owen's Q function ``Q_df(t, delta; a, b)``, by adaptive quadrature.
+_PANELS = 16
+_NODES, _WEIGHTS = np.polynomial.legendre.leggauss(24)
+
+
+def owens_q(df, t, delta, a, b) -> np.ndarray | float:
+    """Owen's Q function ``Q_df(t, delta; a, b)``, by composite Gauss-Legendre quadrature.
 
     ``Q = integral from a to b of Phi(t x / sqrt(df) - delta) chi_df(x) dx``, with ``chi_df``
     the density of the chi distribution. Over ``[0, inf)`` it is the noncentral t distribution
     function ``P(T_{df, delta} <= t)``. The integral is limited to where the chi density is
-    not negligible (beyond its 1e-15 quantiles).
+    not negligible (beyond its 1e-15 quantiles) and split into 16 panels of 24 nodes each;
+    the integrand is smooth there, so the rule is accurate to about 1e-12. Arguments broadcast.
 
     Reference: Owen, D. B. (1965). A special case of a bivariate non-central t-distribution.
     *Biometrika*, 52(3/4), 437-446.
 
-    >>> round(owens_q(10, 2.0, 1.0, 0.0, math.inf), 10) == round(float(stats.nct.cdf(2.0, 10, 1.0)), 10)
+    >>> bool(abs(owens_q(10, 2.0, 1.0, 0.0, math.inf) - stats.nct.cdf(2.0, 10, 1.0)) < 1e-12)
     True
     """
-    chi = stats.chi(df)
-    low = max(a, float(chi.ppf(1e-15)))
-    high = min(b, float(chi.isf(1e-15)))
-    if high <= low:
-        return 0.0
-    root = math.sqrt(df)
-
-    def integrand(x: float) -> float:
-        return float(stats.norm.cdf(t * x / root - delta) * chi.pdf(x))
-
-    points = [delta * root / t] if t != 0 and low < delta * root / t < high else None
-    value, _ = integrate.quad(integrand, low, high, points=points, limit=200, epsabs=1e-13, epsrel=1e-11)
-    return value
+    df, t, delta, a, b = np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (df, t, delta, a, b)))
+    low = np.maximum(a, stats.chi.ppf(1e-15, df))
+    high = np.minimum(b, stats.chi.isf(1e-15, df))
+    width = np.where(high > low, high - low, 0.0)[..., None]
+    panel = width / _PANELS
+    starts = low[..., None] + panel * np.arange(_PANELS)
+    grid = starts[..., None] + panel[..., None] * (_NODES + 1) / 2
+    x = grid.reshape(*df.shape, -1)
+    weights = np.broadcast_to(panel[..., None] / 2 * _WEIGHTS, grid.shape).reshape(*df.shape, -1)
+    nu = df[..., None]
+    log_chi = (nu - 1) * np.log(x) - x**2 / 2 - (nu / 2 - 1) * math.log(2) - special.gammaln(nu / 2)
+    values = special.ndtr(t[..., None] * x / np.sqrt(nu) - delta[..., None]) * np.exp(log_chi)
+    result = np.sum(weights * values, axis=-1)
+    return float(result) if result.ndim == 0 else result
 
 
 def tost_power(lower: float, upper: float, difference: float, n1: np.ndarray, n2: np.ndarray,
@@ -60,14 +66,11 @@ def tost_power(lower: float, upper: float, difference: float, n1: np.ndarray, n2
     """
     n1 = np.atleast_1d(np.asarray(n1, dtype=float))
     n2 = np.broadcast_to(np.asarray(n2, dtype=float), n1.shape)
-    out = np.empty(n1.shape)
-    for i, (a, b) in enumerate(zip(n1, n2)):
-        se = math.sqrt(1 / a + 1 / b)
-        df = a + b - 2
-        t = float(stats.t.isf(alpha, df))
-        delta1 = (difference - lower) / se
-        delta2 = (difference - upper) / se
-        reach = math.sqrt(df) * (delta1 - delta2) / (2 * t)
-        power = owens_q(df, -t, delta2, 0.0, reach) - owens_q(df, t, delta1, 0.0, reach)
-        out[i] = min(max(power, 0.0), 1.0)
-    return out
+    se = np.sqrt(1 / n1 + 1 / n2)
+    df = n1 + n2 - 2
+    t = stats.t.isf(alpha, df)
+    delta1 = (difference - lower) / se
+    delta2 = (difference - upper) / se
+    reach = np.sqrt(df) * (delta1 - delta2) / (2 * t)
+    power = owens_q(df, -t, delta2, 0.0, reach) - owens_q(df, t, delta1, 0.0, reach)
+    return np.clip(power, 0.0, 1.0)
