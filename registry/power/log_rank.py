@@ -82,8 +82,8 @@ def event_probabilities(effect: HazardRatio, allocation_ratio: float, hr: float 
     ``P(event) = 1 - exp(-lam F) (1 - exp(-lam A)) / (lam A)`` (``1 - exp(-lam F)`` when A = 0).
     Group 2's hazard is ``hr`` times group 1's. With ``event_probability`` given, both groups get it.
 
-    Reference: Collett, D. (2015). *Modelling Survival Data in Medical Research* (3rd ed.),
-    section 16.3. Boca Raton: CRC Press.
+    Reference: Collett, D. (2015). *Modelling Survival Data in Medical Research* (3rd ed.).
+    Boca Raton: CRC Press (the chapter on sample size for survival studies).
 
     >>> effect = HazardRatio(hr=0.5, median_control=12.0, accrual=0.0, follow_up=12.0)
     >>> [round(p, 4) for p in event_probabilities(effect, 1.0)]
