@@ -356,13 +356,13 @@ class Family(ABC):
             )
         if design.alternative == "greater" and effect_size < 0:
             raise InfeasibleDesign(
-                f"alternative 'greater' tests for an increase, but the effect is negative ({self.symbol} = "
+                f"alternative 'greater' tests for an increase, but the effect is negative ({self.symbol_for(design)} = "
                 f"{effect_size:.4g}); use 'less' or check the sign of the difference",
                 "design.alternative",
             )
         if design.alternative == "less" and effect_size > 0:
             raise InfeasibleDesign(
-                f"alternative 'less' tests for a decrease, but the effect is positive ({self.symbol} = "
+                f"alternative 'less' tests for a decrease, but the effect is positive ({self.symbol_for(design)} = "
                 f"{effect_size:.4g}); use 'greater' or check the sign of the difference",
                 "design.alternative",
             )
