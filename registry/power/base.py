@@ -176,7 +176,7 @@ class DesignBase(BaseModel):
     )
     cluster: Cluster | None = locked(
         default=None,
-        description="Two-group designs randomised in whole clusters: size (units per cluster) and icc; "
+        description="Designs comparing groups, randomised in whole clusters: size (units per cluster) and icc; "
         "n is multiplied by the design effect 1 + (size - 1) x icc.",
     )
     multiplicity: Multiplicity | None = locked(
