@@ -184,6 +184,10 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
         return
     sample = report.sample
     family = design.family
+    for doubt in family.doubts(design):
+        report.add("approximate-size", "warning", "design.test", doubt, ("design", "test"))
+    for note in sample.notes:
+        report.add("method-note", "info", "design", note, ("design",))
     planned = spec.sample_size.per_group
     analysable = math.floor(planned * (1 - design.attrition) + 1e-9)
     loc = ("sample_size", "per_group")

@@ -191,3 +191,18 @@ def test_schema_command_writes_the_schema(tmp_path, run):
     target = tmp_path / "out" / "schema.json"
     assert run("schema", "--out", target).status == 0
     assert '"$schema": "https://json-schema.org/draft/2020-12/schema"' in target.read_text()
+
+
+def test_rank_sizes_that_are_slow_to_converge_are_flagged(tmp_path, run):
+    # Rank tests under a Laplace outcome reach their asymptotic relative efficiency slowly (measured by
+    # simulation in tests/test_families_b_rank.py), so check warns instead of certifying the size.
+    text = MINIMAL.replace("test: two-sample-t", "test: mann-whitney").replace(
+        "    difference: 4.0\n    sd: 5.0\n", "    d: 0.8\n    distribution: laplace\n")
+    _write(tmp_path, "fibre-butyrate.yaml", text)
+    findings = run("check", tmp_path, "--json").json()["specs"][0]["findings"]
+    kinds = {(f["kind"], f["severity"]) for f in findings}
+    assert ("approximate-size", "warning") in kinds and ("method-note", "info") in kinds
+    normal = MINIMAL.replace("test: two-sample-t", "test: mann-whitney")
+    _write(tmp_path, "fibre-butyrate.yaml", normal)
+    kinds = {f["kind"] for f in run("check", tmp_path, "--json").json()["specs"][0]["findings"]}
+    assert "approximate-size" not in kinds

@@ -20,6 +20,8 @@ from .fields import free, locked
 
 __all__ = [
     "Alternative",
+    "Cluster",
+    "Multiplicity",
     "DesignBase",
     "EffectBase",
     "Family",
@@ -72,6 +74,65 @@ class EffectBase(BaseModel):
     model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False)
 
 
+class Cluster(BaseModel):
+    """Units randomised in whole clusters (litters, cages, culture plates, classes).
+
+    Outcomes within a cluster are correlated, so each unit carries less information: the
+    individual-level n is multiplied by the design effect ``1 + (m - 1) * icc``.
+
+    Reference: Donner, A., & Klar, N. (2000). *Design and Analysis of Cluster Randomization
+    Trials in Health Research*, ch. 5. London: Arnold.
+
+    >>> Cluster(size=10, icc=0.05).design_effect
+    1.45
+    """
+
+    model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False)
+
+    size: int = locked(
+        ge=2, le=1_000_000, description="Units analysed per cluster (m), a whole number of at least 2."
+    )
+    icc: float = locked(description="Intracluster correlation of the outcome, in [0, 1).")
+
+    @field_validator("icc")
+    @classmethod
+    def _icc_fraction(cls, value: float) -> float:
+        return fraction_validator("icc", low_closed=True)(value)
+
+    @property
+    def design_effect(self) -> float:
+        """Variance inflation of a cluster-randomised comparison, ``1 + (m - 1) * icc``."""
+        return round(1 + (self.size - 1) * self.icc, 12)
+
+
+class Multiplicity(BaseModel):
+    """Several primary outcomes, any one of which may support the claim: Bonferroni splits alpha.
+
+    Each outcome is tested at ``alpha / outcomes``; that keeps the familywise type I error at
+    ``alpha``. Holm's step-down procedure keeps it too and rejects at least as often, so sizing
+    for Bonferroni is conservative when the analysis uses Holm.
+
+    References: Dunn, O. J. (1961). Multiple comparisons among means. *Journal of the American
+    Statistical Association*, 56(293), 52-64. Holm, S. (1979). A simple sequentially rejective
+    multiple test procedure. *Scandinavian Journal of Statistics*, 6(2), 65-70.
+
+    >>> Multiplicity(outcomes=2).alpha_per_test(0.05)
+    0.025
+    """
+
+    model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False)
+
+    outcomes: int = locked(
+        ge=2, le=10_000, description="Number of primary outcomes (or comparisons) the claim may rest on, at least 2."
+    )
+    method: Literal["bonferroni"] = locked(
+        default="bonferroni", description="How alpha is split: bonferroni (each outcome at alpha / outcomes)."
+    )
+
+    def alpha_per_test(self, alpha: float) -> float:
+        return alpha / self.outcomes
+
+
 class DesignBase(BaseModel):
     """Assumptions common to all design families (``design:`` in a spec)."""
 
@@ -108,6 +169,16 @@ class DesignBase(BaseModel):
     simulation: SimulationPlan | None = free(
         default=None, description="Also estimate power by simulation at the planned n (docs/simulation.md)."
     )
+    cluster: Cluster | None = locked(
+        default=None,
+        description="Designs comparing groups, randomised in whole clusters: size (units per cluster) and icc; "
+        "n is multiplied by the design effect 1 + (size - 1) x icc.",
+    )
+    multiplicity: Multiplicity | None = locked(
+        default=None,
+        description="Several primary outcomes, any one of which may support the claim: outcomes (k) and "
+        "method (bonferroni); each is tested at alpha / k.",
+    )
 
     @field_validator("alpha", "power")
     @classmethod
@@ -134,11 +205,51 @@ class DesignBase(BaseModel):
             )
         return self
 
+    @model_validator(mode="after")
+    def _cluster_needs_two_groups(self) -> "DesignBase":
+        if self.cluster is None:
+            return self
+        from .catalog import UnknownFamily, get_family
+
+        try:
+            family = get_family(self.test)
+        except UnknownFamily:
+            return self
+        if family.groups < 2:
+            raise ValueError(
+                f"cluster applies to designs that compare groups; {self.test} is a one-group design "
+                f"({family.unit}), so a design effect for randomising whole clusters does not apply. "
+                "Remove the cluster block, or analyse cluster means as the units"
+            )
+        return self
+
     @property
     def family(self) -> "Family":
         from .catalog import get_family
 
         return get_family(self.test)
+
+    @property
+    def effective_alpha(self) -> float:
+        """The level each test is run at: ``alpha``, or ``alpha / k`` with a Bonferroni split."""
+        if self.multiplicity is None:
+            return self.alpha
+        return self.multiplicity.alpha_per_test(self.alpha)
+
+    @property
+    def design_effect(self) -> float:
+        """Variance inflation from clustering (1 without a cluster block)."""
+        return 1.0 if self.cluster is None else self.cluster.design_effect
+
+    def as_tested(self) -> "DesignBase":
+        """This design as one test sees it: ``alpha`` replaced by :attr:`effective_alpha`.
+
+        The solvers and the simulator hand this copy to the family, so every family just reads
+        ``design.alpha`` and a Bonferroni split applies to all of them in one place.
+        """
+        if self.multiplicity is None:
+            return self
+        return self.model_copy(update={"alpha": self.effective_alpha, "multiplicity": None})
 
 
 class Family(ABC):
@@ -216,6 +327,34 @@ class Family(ABC):
         """Express a standardized effect in the design's natural units where it has them."""
         return {self.symbol: effect_size}
 
+    def symbol_for(self, design: DesignBase) -> str:
+        """Symbol of the effect size for this design (families with two effect scales override)."""
+        return self.symbol
+
+    def alternative_for(self, design: DesignBase) -> str:
+        """How the results describe the alternative (families with a fixed direction override)."""
+        return design.alternative
+
+    def notes(self, design: DesignBase) -> tuple[str, ...]:
+        """Family-specific caveats carried into the results."""
+        return ()
+
+    def doubts(self, design: DesignBase) -> tuple[str, ...]:
+        """Reasons to distrust this design's computed size (check reports them as warnings)."""
+        return ()
+
+    def required_events(self, design: DesignBase, effect_size: float) -> float | None:
+        """Event-driven families: the number of events the analysis needs (else None)."""
+        return None
+
+    def expected_events(self, design: DesignBase, n: int, effect_size: float | None = None) -> float | None:
+        """Event-driven families: expected events with ``n`` analysable units in group 1 (else None)."""
+        return None
+
+    def default_distribution(self, design: DesignBase) -> str:
+        """The outcome distribution :meth:`simulate` uses when none is asked for: the family's own."""
+        return self.distributions[0]
+
     def check_direction(self, design: DesignBase, effect_size: float) -> None:
         """Refuse a zero effect or a one-sided alternative pointing the wrong way."""
         if effect_size == 0 or not math.isfinite(effect_size):
@@ -224,13 +363,13 @@ class Family(ABC):
             )
         if design.alternative == "greater" and effect_size < 0:
             raise InfeasibleDesign(
-                f"alternative 'greater' tests for an increase, but the effect is negative ({self.symbol} = "
+                f"alternative 'greater' tests for an increase, but the effect is negative ({self.symbol_for(design)} = "
                 f"{effect_size:.4g}); use 'less' or check the sign of the difference",
                 "design.alternative",
             )
         if design.alternative == "less" and effect_size > 0:
             raise InfeasibleDesign(
-                f"alternative 'less' tests for a decrease, but the effect is positive ({self.symbol} = "
+                f"alternative 'less' tests for a decrease, but the effect is positive ({self.symbol_for(design)} = "
                 f"{effect_size:.4g}); use 'greater' or check the sign of the difference",
                 "design.alternative",
             )

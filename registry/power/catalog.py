@@ -12,10 +12,15 @@ from .chi_square import ChiSquare
 from .correlation import Correlation
 from .linear_regression import LinearRegression
 from .one_proportion import OneProportion
+from .equivalence_t import EquivalenceT
+from .log_rank import LogRank
+from .mann_whitney import MannWhitney
+from .noninferiority_t import NonInferiorityT
 from .one_sample_t import OneSampleT
 from .one_way_anova import OneWayAnova
 from .paired_t import PairedT
 from .two_proportions import TwoProportions
+from .signed_rank import SignedRank
 from .two_sample_t import TwoSampleT
 from .welch_t import WelchT
 
@@ -26,7 +31,18 @@ FAMILIES: tuple[Family, ...] = (
     OneSampleT(),
     PairedT(),
     TwoSampleT(),
-    WelchT(), OneWayAnova(), TwoProportions(), OneProportion(), Correlation(), ChiSquare(), LinearRegression(),
+    WelchT(),
+    OneWayAnova(),
+    TwoProportions(),
+    OneProportion(),
+    Correlation(),
+    ChiSquare(),
+    LinearRegression(),
+    LogRank(),
+    MannWhitney(),
+    SignedRank(),
+    EquivalenceT(),
+    NonInferiorityT(),
 )
 
 _BY_NAME = {family.name: family for family in FAMILIES}

@@ -29,18 +29,29 @@ class SampleSize:
     reference: str
     events: int | None = None
     notes: tuple[str, ...] = field(default_factory=tuple)
+    #: With ``design.multiplicity``: the level each outcome is tested at (``alpha`` stays familywise).
+    alpha_per_test: float | None = None
+    #: With ``design.cluster``: the design effect, the n before it was applied, and whole clusters to
+    #: enrol per group (after attrition), each of ``cluster_size`` units.
+    design_effect: float | None = None
+    individual_n_per_group: int | None = None
+    cluster_size: int | None = None
+    clusters_per_group: tuple[int, ...] | None = None
 
     def __repr__(self) -> str:
         events = f", events={self.events}" if self.events is not None else ""
+        clusters = f", clusters_per_group={self.clusters_per_group}" if self.clusters_per_group else ""
         return (
             f"SampleSize(test={self.test!r}, n_per_group={self.n_per_group}, n_total={self.n_total}"
-            f"{events}, achieved_power={self.achieved_power:.4f})"
+            f"{events}{clusters}, achieved_power={self.achieved_power:.4f})"
         )
 
     def to_dict(self) -> dict[str, Any]:
         out = asdict(self)
         out["group_sizes"] = list(self.group_sizes)
         out["notes"] = list(self.notes)
+        if self.clusters_per_group is not None:
+            out["clusters_per_group"] = list(self.clusters_per_group)
         return out
 
 
@@ -63,6 +74,12 @@ class PowerAtN:
     unit: str
     events: int | None = None
     notes: tuple[str, ...] = field(default_factory=tuple)
+    #: With ``design.multiplicity``: the level each outcome is tested at.
+    alpha_per_test: float | None = None
+    #: With ``design.cluster``: the design effect and the individual-level n it leaves,
+    #: ``floor(n_per_group / design_effect)``, at which power is computed.
+    design_effect: float | None = None
+    effective_n_per_group: int | None = None
 
     def __repr__(self) -> str:
         mde = "None" if self.minimum_detectable_effect is None else f"{self.minimum_detectable_effect:.4f}"

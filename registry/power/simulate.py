@@ -85,13 +85,21 @@ def simulated_power(
 ) -> SimulatedPower:
     """Power of ``design`` at ``n`` analysable units per group by simulating ``reps`` experiments.
 
-    ``progress(done, total)`` is called after each chunk (for a progress bar on long runs);
-    ``chunk`` overrides the replicates per chunk (memory only: the answer is the same).
+    ``distribution`` defaults to the family's choice for this design (its own outcome: normal,
+    binary, or the distribution a rank-test design assumes). Each simulated test runs at the
+    per-test alpha (``alpha / k`` with a multiplicity block). ``progress(done, total)`` is called
+    after each chunk (for a progress bar on long runs); ``chunk`` overrides the replicates per
+    chunk (memory only: the answer is the same).
     Raises :class:`InvalidSimulation` (a ``ValueError``) for a request the family cannot simulate.
     """
     family = design.family
+    if design.cluster is not None:
+        raise InvalidSimulation(
+            "simulating clustered designs is not offered: the simulators draw independent units. "
+            "Simulate the design without its cluster block at n / design effect units per group"
+        )
     if distribution is None:
-        distribution = family.distributions[0]  # the family's own outcome (normal, binary, ...)
+        distribution = family.default_distribution(design)
     if distribution not in family.distributions:
         raise InvalidSimulation(f"the {family.name} simulator offers {', '.join(family.distributions)}; "
                                 f"got {distribution!r}")
@@ -100,6 +108,7 @@ def simulated_power(
     if n < family.min_n:
         raise InvalidSimulation(f"n must be at least {family.min_n} for the {family.title}; got {n}")
     rng = np.random.default_rng(seed)
+    design = design.as_tested()
     size = chunk if chunk is not None else chunk_reps(design, n)
     if size < 1:
         raise InvalidSimulation(f"chunk must be at least 1; got {size!r}")

@@ -112,22 +112,88 @@ def _checked_effect(family: Family, design: DesignBase) -> float:
     return es
 
 
+def _shared_notes(design: DesignBase) -> list[str]:
+    """Notes on the adjustments made here for every family (multiplicity, clusters, attrition)."""
+    notes = []
+    if design.multiplicity is not None:
+        k = design.multiplicity.outcomes
+        notes.append(
+            f"{k} primary outcomes: each is tested at alpha / {k} = {design.effective_alpha:.4g} (Bonferroni), "
+            f"keeping the familywise error at {design.alpha:g}; Holm's step-down procedure keeps it too and is "
+            "uniformly more powerful, so this sizing is conservative if the analysis uses Holm. If every outcome "
+            "must succeed (co-primary in the strict sense), no split is needed but the joint power is lower "
+            "than the per-outcome power"
+        )
+    if design.cluster is not None:
+        c = design.cluster
+        notes.append(
+            f"randomised in clusters of {c.size} with intracluster correlation {c.icc:g}: the individual-level n "
+            f"is multiplied by the design effect 1 + ({c.size} - 1) x {c.icc:g} = {design.design_effect:.4g}, "
+            "then enrolment is allowed for attrition and rounded up to whole clusters. The design effect assumes "
+            "many clusters; with few clusters per group a cluster-level analysis has fewer degrees of freedom "
+            "and somewhat less power"
+        )
+    return notes
+
+
+def _clustered(design: DesignBase, n_individual: int) -> int:
+    """Analysable units in group 1 once the design effect is applied: ``ceil(n * DE)``."""
+    if design.cluster is None:
+        return n_individual
+    return math.ceil(n_individual * design.design_effect - 1e-9)
+
+
+def _individual(design: DesignBase, n: int) -> int:
+    """The individual-level n that ``n`` clustered units are worth: ``floor(n / DE)``."""
+    if design.cluster is None:
+        return n
+    return math.floor(n / design.design_effect + 1e-9)
+
+
 def solve_sample_size(design: DesignBase) -> SampleSize:
-    """The smallest analysable n reaching ``design.power``, with enrolment after attrition."""
+    """The smallest analysable n reaching ``design.power``, with enrolment after attrition.
+
+    The adjustments shared by every family are made here, in this order:
+
+    1. multiplicity: the family sees a copy of the design with ``alpha`` replaced by the
+       per-test level (:meth:`DesignBase.as_tested`) and finds the smallest individual-level n;
+    2. clustering: group 1 needs ``ceil(n x design effect)`` analysable units, group 2 follows
+       the allocation ratio;
+    3. attrition: each group enrols ``ceil(analysable / (1 - attrition))`` units;
+    4. clustering again: enrolment is rounded up to whole clusters of ``cluster.size`` units.
+
+    Attrition is applied after the design effect because units drop out of clusters, not whole
+    clusters; the design effect uses the planned cluster size, which is conservative when dropouts
+    leave clusters smaller.
+    """
     family = design.family
-    es = _checked_effect(family, design)
-    start = family.approximate_n(design, es)
+    tested = design.as_tested()
+    es = _checked_effect(family, tested)
+    start = family.approximate_n(tested, es)
     if not math.isfinite(start) or start > MAX_N:
         raise InfeasibleDesign(
-            f"the effect ({family.symbol} = {es:.4g}) is too small: more than {MAX_N:,} per group would be needed"
+            f"the effect ({family.symbol_for(design)} = {es:.4g}) is too small: more than {MAX_N:,} per group "
+            "would be needed"
         )
     notes: tuple[str, ...] = ()
     if family.monotone:
-        n, achieved = smallest_n(lambda n: family.power(design, n, es), design.power, start, family.min_n)
+        n_individual, achieved = smallest_n(lambda n: family.power(tested, n, es), tested.power, start,
+                                            family.min_n)
     else:
-        n, achieved, notes = _settled_n(family, design, es, start)
+        n_individual, achieved, notes = _settled_n(family, tested, es, start)
+    n = _clustered(design, n_individual)
+    if n > MAX_N:
+        raise InfeasibleDesign(f"more than {MAX_N:,} per group would be needed once the design effect is applied")
     sizes = family.group_sizes(design, n)
     enrolled = tuple(enrolment(g, design.attrition) for g in sizes)
+    clusters = None
+    if design.cluster is not None:
+        m = design.cluster.size
+        clusters = tuple(math.ceil(g / m - 1e-9) for g in enrolled)
+        enrolled = tuple(c * m for c in clusters)
+    events = family.required_events(tested, es)
+    if events is not None:
+        events = math.ceil(events * design.design_effect - 1e-9)
     return SampleSize(
         test=family.name,
         n_per_group=n,
@@ -135,16 +201,22 @@ def solve_sample_size(design: DesignBase) -> SampleSize:
         achieved_power=achieved,
         target_power=design.power,
         alpha=design.alpha,
-        alternative=design.alternative,
+        alternative=family.alternative_for(design),
         effect_size=es,
-        symbol=family.symbol,
+        symbol=family.symbol_for(design),
         group_sizes=sizes,
         enrolment_per_group=enrolled[0],
         enrolment_total=sum(enrolled),
         unit=family.unit,
         method=family.method,
         reference=family.reference,
-        notes=notes,
+        events=events,
+        notes=notes + tuple(family.notes(tested)) + tuple(_shared_notes(design)),
+        alpha_per_test=tested.alpha if design.multiplicity is not None else None,
+        design_effect=design.design_effect if design.cluster is not None else None,
+        individual_n_per_group=n_individual if design.cluster is not None else None,
+        cluster_size=design.cluster.size if design.cluster is not None else None,
+        clusters_per_group=clusters,
     )
 
 
@@ -169,14 +241,12 @@ def _settled_n(family: Family, design: DesignBase, es: float, start: float) -> t
     return n, achieved, (note,)
 
 
-def minimum_effect(design: DesignBase, n: int) -> float | None:
-    """Smallest standardized effect (in the design's direction) reaching the target power at n."""
-    family = design.family
-    es = family.effect_size(design)
-    sign = -1.0 if (design.alternative == "less" or (design.alternative == "two-sided" and es < 0)) else 1.0
+def _minimum_effect(family: Family, tested: DesignBase, n: int) -> float | None:
+    es = family.effect_size(tested)
+    sign = -1.0 if (tested.alternative == "less" or (tested.alternative == "two-sided" and es < 0)) else 1.0
 
     def gap(magnitude: float) -> float:
-        return float(family.power(design, np.array([n]), sign * magnitude)[0]) - design.power
+        return float(family.power(tested, np.array([n]), sign * magnitude)[0]) - tested.power
 
     high = 1.0
     while gap(high) < 0:
@@ -187,26 +257,50 @@ def minimum_effect(design: DesignBase, n: int) -> float | None:
     return sign * optimize.brentq(gap, low, high, xtol=1e-10, rtol=1e-10)
 
 
+def minimum_effect(design: DesignBase, n: int) -> float | None:
+    """Smallest standardized effect (in the design's direction) reaching the target power with
+    ``n`` analysable units per group (before the design effect, as in :func:`power_at`)."""
+    family = design.family
+    return _minimum_effect(family, design.as_tested(), _individual(design, n))
+
+
 def power_at(design: DesignBase, n: int) -> PowerAtN:
-    """Power of the design at ``n`` analysable units per group, and its minimum detectable effect."""
+    """Power of the design at ``n`` analysable units per group, and its minimum detectable effect.
+
+    With a cluster block, ``n`` units are worth ``floor(n / design effect)`` independent units;
+    with a multiplicity block, power is per outcome at the per-test alpha.
+    """
     family = design.family
     if n < family.min_n:
         raise InfeasibleDesign(f"n must be at least {family.min_n} for the {family.title}; got {n}", "n")
-    es = _checked_effect(family, design)
-    mde = minimum_effect(design, n)
+    n_individual = _individual(design, n)
+    if n_individual < family.min_n:
+        raise InfeasibleDesign(
+            f"{n} units in clusters are worth {n_individual} independent units (design effect "
+            f"{design.design_effect:.4g}); the {family.title} needs at least {family.min_n}", "n"
+        )
+    tested = design.as_tested()
+    es = _checked_effect(family, tested)
+    mde = _minimum_effect(family, tested, n_individual)
     sizes = family.group_sizes(design, n)
+    events = family.expected_events(tested, n, es)  # among the units actually analysed
     return PowerAtN(
         test=family.name,
         n_per_group=n,
         n_total=sum(sizes),
-        power=float(family.power(design, np.array([n]), es)[0]),
+        power=float(family.power(tested, np.array([n_individual]), es)[0]),
         alpha=design.alpha,
-        alternative=design.alternative,
+        alternative=family.alternative_for(design),
         target_power=design.power,
         effect_size=es,
-        symbol=family.symbol,
+        symbol=family.symbol_for(design),
         minimum_detectable_effect=mde,
-        minimum_detectable_natural=family.natural_effect(design, mde) if mde is not None else {},
+        minimum_detectable_natural=family.natural_effect(tested, mde) if mde is not None else {},
         group_sizes=sizes,
         unit=family.unit,
+        events=None if events is None else round(events),
+        notes=tuple(family.notes(tested)) + tuple(_shared_notes(design)),
+        alpha_per_test=tested.alpha if design.multiplicity is not None else None,
+        design_effect=design.design_effect if design.cluster is not None else None,
+        effective_n_per_group=n_individual if design.cluster is not None else None,
     )

@@ -1,0 +1,187 @@
+"""Shared design blocks: clusters (design effect) and several primary outcomes (Bonferroni)."""
+
+from __future__ import annotations
+
+import math
+import textwrap
+
+import numpy as np
+import pytest
+from scipy import stats
+from statsmodels.stats.power import TTestIndPower
+
+from registry.checks import check_file
+from registry.discovery import SpecFile
+from registry.power import FAMILIES, InvalidDesign, design_from_params, power, sample_size
+from registry.power.base import Cluster
+from registry.power.simulate import simulated_power
+
+#: One effect per family, for checks that hold whatever the family.
+EXAMPLES = {
+    "one-sample-t": dict(d=0.5),
+    "paired-t": dict(d=0.5),
+    "two-sample-t": dict(d=0.5),
+    "log-rank": dict(hr=0.6, event_probability=0.7),
+    "mann-whitney": dict(d=0.5),
+    "signed-rank": dict(d=0.5),
+    "equivalence-t": dict(margin=0.5, sd=1.0),
+    "noninferiority-t": dict(margin=0.5, sd=1.0),
+}
+TWO_GROUP = [f.name for f in FAMILIES if f.groups >= 2 and f.name in EXAMPLES]
+ONE_GROUP = [f.name for f in FAMILIES if f.groups == 1 and f.name in EXAMPLES]
+CLUSTER = {"size": 10, "icc": 0.05}
+
+
+def test_design_effect():
+    # Donner & Klar (2000) ch. 5: design effect 1 + (m - 1) rho; m = 10, rho = 0.05 gives 1.45 (from memory)
+    assert Cluster(size=10, icc=0.05).design_effect == pytest.approx(1.45)
+    assert Cluster(size=25, icc=0.0).design_effect == 1.0
+
+
+def test_clustered_two_sample_t():
+    # Cohen (1988) Table 2.4.1: d = 0.5 needs 64 per group (from memory); x 1.45 = 92.8 -> 93 analysable,
+    # enrolled in whole clusters of 10: 10 clusters, 100 units per group
+    result = sample_size("two-sample-t", d=0.5, cluster=CLUSTER)
+    assert result.individual_n_per_group == 64
+    assert result.n_per_group == 93
+    assert result.clusters_per_group == (10, 10)
+    assert (result.enrolment_per_group, result.enrolment_total) == (100, 200)
+    assert result.design_effect == pytest.approx(1.45)
+    assert any("design effect" in note for note in result.notes)
+
+
+def test_cluster_then_attrition_order():
+    # documented order: n x DE, then / (1 - attrition), then whole clusters: 93 / 0.9 = 103.3 -> 104 -> 11 clusters
+    result = sample_size("two-sample-t", d=0.5, cluster=CLUSTER, attrition=0.1)
+    assert result.n_per_group == 93
+    assert result.clusters_per_group == (11, 11)
+    assert result.enrolment_per_group == 110
+
+
+def test_unequal_allocation_gives_clusters_per_group():
+    result = sample_size("two-sample-t", d=0.5, cluster=CLUSTER, ratio=2.0)
+    n1, n2 = result.group_sizes
+    assert n2 == math.ceil(2 * n1)
+    assert result.clusters_per_group == (math.ceil(n1 / 10), math.ceil(n2 / 10))
+
+
+@pytest.mark.parametrize("test", TWO_GROUP)
+def test_cluster_works_for_every_two_group_family(test):
+    params = EXAMPLES[test]
+    plain = sample_size(test, **params)
+    clustered = sample_size(test, **params, cluster=CLUSTER)
+    assert clustered.individual_n_per_group == plain.n_per_group
+    assert clustered.n_per_group == math.ceil(plain.n_per_group * 1.45 - 1e-9)
+    assert clustered.enrolment_per_group % 10 == 0
+    # power at the clustered n meets the target, one unit fewer does not
+    n = clustered.n_per_group
+    at = power(test, n, **params, cluster=CLUSTER)
+    assert at.power >= 0.8 > power(test, n - 1, **params, cluster=CLUSTER).power
+    assert at.effective_n_per_group == plain.n_per_group
+
+
+def test_zero_icc_changes_only_the_rounding_to_clusters():
+    plain = sample_size("two-sample-t", d=0.5)
+    clustered = sample_size("two-sample-t", d=0.5, cluster={"size": 6, "icc": 0.0})
+    assert clustered.n_per_group == plain.n_per_group == 64
+    assert clustered.enrolment_per_group == 66  # 11 clusters of 6
+
+
+def test_cluster_scales_events():
+    # Schoenfeld (1983) events 4 (z_a + z_b)^2 / log(hr)^2 (scipy quantiles), times the design effect
+    events = 4 * (stats.norm.isf(0.025) + stats.norm.ppf(0.8)) ** 2 / math.log(0.6) ** 2
+    clustered = sample_size("log-rank", hr=0.6, event_probability=0.7, cluster=CLUSTER)
+    assert clustered.events == math.ceil(events * 1.45)
+
+
+@pytest.mark.parametrize("test", ONE_GROUP)
+def test_cluster_is_refused_for_one_group_designs(test):
+    with pytest.raises(InvalidDesign, match="one-group design"):
+        sample_size(test, **EXAMPLES[test], cluster=CLUSTER)
+
+
+@pytest.mark.parametrize(
+    "cluster, message",
+    [({"size": 10, "icc": 5}, "did you mean 0.05"), ({"size": 1, "icc": 0.1}, "at least 2"),
+     ({"size": 10}, "icc"), ({"size": 10, "icc": 0.1, "rho": 0.1}, "rho")],
+)
+def test_bad_cluster_blocks_are_explained(cluster, message):
+    with pytest.raises(InvalidDesign, match=message):
+        sample_size("two-sample-t", d=0.5, cluster=cluster)
+
+
+def test_clustered_simulation_is_refused_clearly():
+    with pytest.raises(ValueError, match="not offered"):
+        simulated_power(design_from_params("two-sample-t", d=0.5, cluster=CLUSTER), 93, reps=10)
+
+
+@pytest.mark.parametrize("test", list(EXAMPLES))
+@pytest.mark.parametrize("outcomes", [2, 3])
+def test_bonferroni_is_alpha_over_k_for_every_family(test, outcomes):
+    params = EXAMPLES[test]
+    split = sample_size(test, **params, multiplicity={"outcomes": outcomes})
+    direct = sample_size(test, **params, alpha=0.05 / outcomes)
+    assert (split.n_per_group, split.achieved_power) == (direct.n_per_group, direct.achieved_power)
+    assert split.alpha == 0.05 and split.alpha_per_test == pytest.approx(0.05 / outcomes)
+    assert any("Holm" in note and "conservative" in note for note in split.notes)
+    at = power(test, split.n_per_group, **params, multiplicity={"outcomes": outcomes})
+    assert at.power == pytest.approx(split.achieved_power, rel=1e-12)
+
+
+def test_bonferroni_against_statsmodels():
+    # statsmodels TTestIndPower at alpha 0.05 / 2 (reference library)
+    expected = math.ceil(TTestIndPower().solve_power(0.5, alpha=0.025, power=0.8))
+    assert sample_size("two-sample-t", d=0.5, multiplicity={"outcomes": 2}).n_per_group == expected
+
+
+def test_simulation_uses_the_per_test_alpha():
+    split = design_from_params("two-sample-t", d=0.5, multiplicity={"outcomes": 2})
+    direct = design_from_params("two-sample-t", d=0.5, alpha=0.025)
+    assert simulated_power(split, 40, reps=2000).power == simulated_power(direct, 40, reps=2000).power
+
+
+def test_multiplicity_with_cluster_and_attrition_compose():
+    result = sample_size("two-sample-t", d=0.5, multiplicity={"outcomes": 2}, cluster=CLUSTER, attrition=0.2)
+    base = sample_size("two-sample-t", d=0.5, alpha=0.025).n_per_group
+    assert result.individual_n_per_group == base
+    analysable = math.ceil(base * 1.45 - 1e-9)
+    assert result.n_per_group == analysable
+    assert result.enrolment_per_group == 10 * math.ceil(math.ceil(analysable / 0.8 - 1e-9) / 10)
+
+
+def test_bad_multiplicity_is_explained():
+    with pytest.raises(InvalidDesign, match="at least 2"):
+        sample_size("two-sample-t", d=0.5, multiplicity={"outcomes": 1})
+    with pytest.raises(InvalidDesign, match="bonferroni"):
+        sample_size("two-sample-t", d=0.5, multiplicity={"outcomes": 2, "method": "sidak"})
+
+
+def test_check_accepts_the_clustered_enrolment_and_flags_one_cluster_less(tmp_path):
+    def spec(per_group):
+        text = textwrap.dedent(f"""\
+            id: litter-growth
+            title: Maternal diet and pup growth, randomised by litter
+            status: draft
+            data_collection:
+              start: 2027-03-01
+            design:
+              test: two-sample-t
+              effect:
+                d: 0.5
+              cluster:
+                size: 10
+                icc: 0.05
+              attrition: 0.1
+            sample_size:
+              per_group: {per_group}
+            """)
+        path = tmp_path / "litter-growth.yaml"
+        path.write_text(text, encoding="utf-8")
+        return check_file(SpecFile(path=path, display="litter-growth.yaml", root=tmp_path))
+
+    enough = spec(110)
+    assert enough.verdict == "ok", [f.message for f in enough.findings]
+    assert enough.sample.clusters_per_group == (11, 11)
+    short = spec(100)
+    assert short.verdict == "underpowered"
+    assert np.isclose(short.sample.design_effect, 1.45)
