@@ -73,6 +73,7 @@ class SpecReport:
     sample: SampleSize | None = None
     at_planned: PowerAtN | None = None
     problems_text: str = ""
+    history: Any = None  # registry.history.SpecHistory when the file is in a git repository
 
     @property
     def planned_per_group(self) -> int | None:
@@ -104,6 +105,8 @@ class SpecReport:
             return sorted(kinds)[0]
         if any(f.kind == "oversized" for f in self.findings):
             return "oversized"
+        if any(f.kind == "deleted" for f in self.findings):
+            return "deleted"
         return "ok"
 
     def to_dict(self) -> dict[str, Any]:
@@ -118,6 +121,7 @@ class SpecReport:
             "target_power": self.spec.design.power if self.spec else None,
             "verdict": self.verdict,
             "findings": [f.to_dict() for f in self.findings],
+            **({"history": self.history.summary()} if self.history is not None else {}),
         }
 
     def add(self, kind: str, severity: Severity, field: str, message: str, loc: tuple[Any, ...] = ()) -> None:

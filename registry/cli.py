@@ -10,12 +10,13 @@ from types import ModuleType
 
 from . import __version__
 from .commands import check, new, schema
+from .commands import demo, freeze, hash, history, verify
 from .discovery import UsageError
 
 __all__ = ["main", "COMMANDS"]
 
 #: Each command module has ``HELP``, ``add_arguments(parser)`` and ``run(args) -> int``.
-COMMANDS: tuple[ModuleType, ...] = (check, schema, new)
+COMMANDS: tuple[ModuleType, ...] = (check, schema, new, history, freeze, verify, hash, demo)
 
 
 class _Parser(argparse.ArgumentParser):
