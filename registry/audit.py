@@ -66,11 +66,13 @@ class RegistryHistory:
 
 def read_history(repo: Repository) -> RegistryHistory:
     """Read every spec's versions from ``repo`` with one ``git log`` and one blob reader."""
-    store = SnapshotStore(repo.read_blob)
     log = repo.log()
+    tree = repo.tree_files()
+    wanted = {sha for entry in log for change in entry.changes for sha in (change.old_blob, change.new_blob) if sha}
+    store = SnapshotStore(repo.read_blob, repo.read_blobs(sorted(wanted | set(tree.values()))))
     commits = {entry.commit.sha: entry.commit for entry in log}
     head_ids: dict[str, tuple[str, str]] = {}
-    for path, blob in repo.tree_files().items():
+    for path, blob in tree.items():
         spec_id = store.get(blob).id
         if spec_id and spec_id not in head_ids:
             head_ids[spec_id] = (path, blob)
@@ -78,10 +80,11 @@ def read_history(repo: Repository) -> RegistryHistory:
                            {sha: c.committer_date for sha, c in commits.items()}, commits)
 
 
-def registrations(repo: Repository, spec_id: str) -> list[Registration]:
-    """The registration tags of ``spec_id``, oldest version first."""
+def registrations(repo: Repository, spec_id: str, tags: Sequence[TagInfo] | None = None) -> list[Registration]:
+    """The registration tags of ``spec_id``, oldest version first (from ``tags`` when given:
+    all of ``repo.tags("prespec")``, listed once for a whole registry)."""
     out = []
-    for tag in repo.tags(f"prespec/{spec_id}/v*"):
+    for tag in tags if tags is not None else repo.tags(f"prespec/{spec_id}/v*"):
         version = tag_version(tag.name, spec_id)
         if version is None:
             continue
@@ -98,7 +101,7 @@ def worktree_snapshot(report: SpecReport) -> Snapshot | None:
     """The working-tree version ``check`` loaded, as a snapshot to compare with HEAD's."""
     if report.spec is None or report.document is None:
         return None
-    return Snapshot("working-tree", report.document.data, None, report.spec, True)
+    return Snapshot.of("working-tree", report.document.data, report.spec, report.document.source)
 
 
 @dataclass
@@ -179,6 +182,7 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
         status.repositories.append({"root": str(root), "head": registry.head, "shallow": registry.shallow,
                                     "commits": len(registry.commits)})
         seen: set[str] = set()
+        all_tags = repo.tags("prespec")
         for report, spec_file in members:
             if report.id is None:
                 continue
@@ -191,15 +195,15 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
             if work is not None:
                 found += uncommitted_findings(registry.head_snapshot(report.id), work, today,
                                               extra_locked=extra, started_on=history.started_on)
-            found += _unreachable_tags(repo, report.id)
+            found += _unreachable_tags(repo, report.id, all_tags)
             report.findings += [_with_position(f, report) for f in found]
         reports += _deleted_reports(registry, seen, scopes)
     return status
 
 
-def _unreachable_tags(repo: Repository, spec_id: str) -> list[Finding]:
+def _unreachable_tags(repo: Repository, spec_id: str, tags: Sequence[TagInfo]) -> list[Finding]:
     out = []
-    for registration in registrations(repo, spec_id):
+    for registration in registrations(repo, spec_id, tags):
         if not registration.tag.reachable:
             out.append(Finding(
                 "rewritten-history", "warning", "", None,

@@ -107,9 +107,12 @@ def _parse_log(raw: bytes, suffixes: tuple[str, ...]) -> list[LogEntry]:
     i, count = 0, len(tokens)
     commit: Commit | None = None
     changes: list[FileChange] = []
+    mark = _MARK.encode()
     while i < count:
-        token = tokens[i].lstrip(b"\n")
-        if token.startswith(_MARK.encode()):
+        token = tokens[i]
+        if token[:1] == b"\n":
+            token = token.lstrip(b"\n")
+        if token[:1] == mark:
             if commit is not None:
                 entries.append(LogEntry(commit, tuple(changes)))
             fields = [token[1:], *tokens[i + 1:i + 8]]
@@ -187,6 +190,31 @@ class Repository:
 
     def read_blob(self, sha: str) -> bytes:
         return self._repo.odb.stream(bytes.fromhex(sha)).read()
+
+    def read_blobs(self, shas: list[str]) -> dict[str, bytes]:
+        """Many blobs at once through one ``git cat-file --batch``."""
+        import tempfile
+
+        if not shas:
+            return {}
+        with tempfile.TemporaryFile() as handle:
+            handle.write("".join(f"{sha}\n" for sha in shas).encode("ascii"))
+            handle.seek(0)
+            raw = self._run("cat-file", "--batch", istream=handle, stdout_as_string=False,
+                            strip_newline_in_stdout=False)
+        out: dict[str, bytes] = {}
+        view = memoryview(raw)  # type: ignore[arg-type]
+        pos = 0
+        while pos < len(raw):  # type: ignore[arg-type]
+            end = raw.index(b"\n", pos)  # type: ignore[union-attr]
+            header = bytes(view[pos:end]).split()
+            pos = end + 1
+            if len(header) < 3:  # "<sha> missing"
+                continue
+            size = int(header[2])
+            out[header[0].decode()] = bytes(view[pos:pos + size])
+            pos += size + 1
+        return out
 
     def tree_files(self, rev: str = "HEAD", suffixes: tuple[str, ...] = (".yaml", ".yml")) -> dict[str, str]:
         """Path -> blob id of the regular files ending in ``suffixes`` in ``rev``'s tree."""

@@ -33,7 +33,7 @@ from .git import Commit, LogEntry
 from .model import Spec, locked_paths
 from .problems import InvalidSpec
 from .validation import validate_document
-from .yamlio import load_bytes_fast
+from .yamlio import load_bytes_fast, peek_scalars
 
 __all__ = [
     "MISSING",
@@ -130,18 +130,53 @@ def _put(target: dict[str, Any], loc: tuple[Any, ...], value: Any) -> None:
     node[keys[-1]] = value
 
 
+_PEEK = (("id",), ("data_collection", "start"))
+
+
 @dataclass
 class Snapshot:
-    """One version of one spec file: its parsed data and, when valid, the validated spec."""
+    """One version of one spec file: its bytes, parsed (and validated) only when needed.
+
+    ``id`` and ``start`` come from a cheap peek at the text where possible; the full parse
+    and validation happen only for versions that are compared.
+    """
 
     blob: str
-    data: Any
-    error: str | None = None
+    raw: bytes | None = None
+    _data: Any = field(default=None, repr=False)
+    _parsed: bool = field(default=False, repr=False)
     _spec: Spec | None = field(default=None, repr=False)
     _validated: bool = field(default=False, repr=False)
+    _peeked: dict[tuple[str, ...], str] | None = field(default=None, repr=False)
+    error: str | None = None
+
+    @classmethod
+    def of(cls, blob: str, data: Any, spec: Spec | None = None, source: str | None = None) -> "Snapshot":
+        """A snapshot of already loaded (and validated) content, e.g. the working tree's."""
+        return cls(blob, source.encode("utf-8") if source is not None else None, data, True, spec, spec is not None)
+
+    @property
+    def data(self) -> Any:
+        if not self._parsed:
+            self._parsed = True
+            try:
+                self._data = load_bytes_fast(self.raw or b"", self.blob).data
+            except InvalidSpec as error:
+                self.error = "; ".join(p.message for p in error.problems[:3])
+        return self._data
+
+    def _peek(self) -> dict[tuple[str, ...], str] | None:
+        if self._parsed or self.raw is None:
+            return None
+        if self._peeked is None:
+            self._peeked = peek_scalars(self.raw, _PEEK) or {}
+        return self._peeked if len(self._peeked) == len(_PEEK) else None
 
     @property
     def id(self) -> str | None:
+        peeked = self._peek()
+        if peeked is not None:
+            return peeked[("id",)]
         data = self.data
         if isinstance(data, dict) and isinstance(data.get("id"), str) and SPEC_KEYS & data.keys():
             return data["id"]
@@ -150,7 +185,9 @@ class Snapshot:
     @property
     def start(self) -> date | None:
         """``data_collection.start`` as written (read without validating the rest)."""
-        value = _get(self.data, ("data_collection", "start"))
+        peeked = self._peek()
+        value: Any = peeked[("data_collection", "start")] if peeked is not None else \
+            _get(self.data, ("data_collection", "start"))
         if isinstance(value, date):
             return value
         try:
@@ -163,14 +200,22 @@ class Snapshot:
         """The validated spec, or ``None`` for an invalid version (validated once, when first asked)."""
         if not self._validated:
             self._validated = True
-            if isinstance(self.data, dict):
+            data = self.data
+            if isinstance(data, dict):
                 from .yamlio import Document
 
                 try:
-                    self._spec = validate_document(Document("", self.data, ""))
+                    self._spec = validate_document(Document("", data, ""))
                 except InvalidSpec as error:
                     self.error = "; ".join(p.message for p in error.problems[:3])
         return self._spec
+
+    def locked(self, extra_locked: Sequence[str] = ()) -> dict[str, Any]:
+        """The locked fields as plain nested values (an invalid version gives its raw values)."""
+        spec = self.spec
+        if spec is not None and not extra_locked:
+            return locked_view(spec)
+        return self.views(extra_locked)[0]
 
     def views(self, extra_locked: Sequence[str] = ()) -> tuple[dict[str, Any], dict[str, Any]]:
         """(locked fields, all fields) as plain nested values; an invalid version gives its raw values."""
@@ -196,25 +241,19 @@ class Snapshot:
 
 
 class SnapshotStore:
-    """Parsed versions by blob id: every blob is read and parsed at most once."""
+    """Versions by blob id: every blob is read once (in bulk where possible) and parsed at most once."""
 
-    def __init__(self, read_blob: Callable[[str], bytes]) -> None:
+    def __init__(self, read_blob: Callable[[str], bytes], blobs: Mapping[str, bytes] | None = None) -> None:
         self._read = read_blob
+        self._blobs = dict(blobs or {})
         self._cache: dict[str, Snapshot] = {}
 
     def get(self, blob: str) -> Snapshot:
         snap = self._cache.get(blob)
         if snap is None:
-            try:
-                data: Any = load_bytes_fast(self._read(blob), blob).data
-                snap = Snapshot(blob, data)
-            except InvalidSpec as error:
-                snap = Snapshot(blob, None, "; ".join(p.message for p in error.problems[:3]))
-            self._cache[blob] = snap
+            raw = self._blobs.pop(blob, None)
+            snap = self._cache[blob] = Snapshot(blob, raw if raw is not None else self._read(blob))
         return snap
-
-    def put(self, snap: Snapshot) -> None:
-        self._cache[snap.blob] = snap
 
 
 def diff(old: Any, new: Any, path: str = "") -> list[tuple[str, Any, Any]]:
@@ -459,7 +498,7 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
         compared = base is not None and new is not None and (after or detail)
         if compared:
             assert base is not None and new is not None
-            changes = _changes(base, new, extra_locked, after)
+            changes = _changes(base, new, extra_locked, after, free=detail)
             for change in changes:
                 if change.locked and after:
                     history.findings.append(_drift_finding(change, commit, started))
@@ -490,9 +529,16 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
     return history
 
 
-def _changes(base: Snapshot, new: Snapshot, extra_locked: Sequence[str], after: bool) -> list[FieldChange]:
-    locked_old, full_old = base.views(extra_locked)
-    locked_new, full_new = new.views(extra_locked)
+def _changes(base: Snapshot, new: Snapshot, extra_locked: Sequence[str], after: bool,
+             free: bool = True) -> list[FieldChange]:
+    if base.raw is not None and base.raw == new.raw:
+        return []
+    if free:
+        locked_old, full_old = base.views(extra_locked)
+        locked_new, full_new = new.views(extra_locked)
+    else:
+        locked_old, locked_new = base.locked(extra_locked), new.locked(extra_locked)
+        full_old = full_new = {}
     before_keys = {json.dumps(a, sort_keys=True, default=str) for a in base.amendments()}
     added = [a for a in new.amendments() if json.dumps(a, sort_keys=True, default=str) not in before_keys]
     out: list[FieldChange] = []
@@ -564,7 +610,7 @@ def uncommitted_findings(head: Snapshot | None, work: Snapshot, today: date, *,
                         "this spec is not committed yet; commit it before data collection starts"
                         + (f" ({start})" if start else ""))]
     out = []
-    for change in _changes(head, work, extra_locked, after):
+    for change in _changes(head, work, extra_locked, after, free=False):
         if not change.locked:
             continue
         what = f"{change.field} changed {show_change(change.old, change.new)} in the working tree (not committed)"

@@ -29,6 +29,7 @@ __all__ = [
     "load_bytes",
     "load_file",
     "load_bytes_fast",
+    "peek_scalars",
     "FAST_LOADER",
     "dump",
     "MAX_FILE_BYTES",
@@ -324,6 +325,68 @@ def load_bytes_fast(raw: bytes, path: str) -> Document:
         composer.dispose()
     doc = Document(path=path, data=None, source=text)
     return _document(doc, roots, doc.source_lines)
+
+
+def peek_scalars(raw: bytes, paths: tuple[tuple[str, ...], ...]) -> dict[tuple[str, ...], str] | None:
+    """The text of the scalars at ``paths`` (mapping keys from the top), read with libyaml's event
+    parser and stopping as soon as all are found: far cheaper than a full load for the many
+    historical versions whose only interesting values are an id and a date.
+
+    Returns ``None`` when it cannot answer with certainty (no C parser, a syntax error, an alias or
+    a complex key on the way); the caller then loads the text in full.
+    """
+    if _C is None or len(raw) > MAX_FILE_BYTES or b"%YAML" in raw:
+        return None
+    import yaml as pyyaml
+
+    wanted = set(paths)
+    found: dict[tuple[str, ...], str] = {}
+    parser = _C[0](raw)
+    # stack of [path, is_mapping, expecting_key, current_key]
+    stack: list[list[Any]] = []
+    try:
+        while len(found) < len(wanted):
+            event = parser.get_event()
+            if event is None or isinstance(event, pyyaml.StreamEndEvent):
+                break
+            if isinstance(event, (pyyaml.StreamStartEvent, pyyaml.DocumentStartEvent, pyyaml.DocumentEndEvent)):
+                continue
+            top = stack[-1] if stack else None
+            if top is not None and top[1] and top[2]:  # a mapping key
+                if not isinstance(event, pyyaml.ScalarEvent):
+                    if isinstance(event, pyyaml.MappingEndEvent):
+                        stack.pop()
+                        _value_done(stack)
+                        continue
+                    return None
+                top[3], top[2] = event.value, False
+                continue
+            path = (*top[0], top[3]) if top is not None and top[1] else (*top[0], "[]") if top else ()
+            if isinstance(event, pyyaml.ScalarEvent):
+                if path in wanted and path not in found:
+                    found[path] = event.value
+                _value_done(stack)
+            elif isinstance(event, pyyaml.AliasEvent):
+                if path in wanted:
+                    return None
+                _value_done(stack)
+            elif isinstance(event, pyyaml.MappingStartEvent):
+                stack.append([path, True, True, None])
+            elif isinstance(event, pyyaml.SequenceStartEvent):
+                stack.append([path, False, False, None])
+            elif isinstance(event, (pyyaml.MappingEndEvent, pyyaml.SequenceEndEvent)):
+                stack.pop()
+                _value_done(stack)
+    except (_C[1], RecursionError, ValueError):
+        return None
+    finally:
+        parser.dispose()
+    return found
+
+
+def _value_done(stack: list[list[Any]]) -> None:
+    if stack and stack[-1][1]:
+        stack[-1][2] = True
 
 
 def _syntax_problem(exc: MarkedYAMLError, lines: list[str]) -> Problem:
