@@ -162,8 +162,12 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
     today = today or date.today()
     status = HistoryStatus()
     repos: dict[Path, tuple[Repository, list[tuple[SpecReport, SpecFile]]]] = {}
+    by_folder: dict[Path, Repository | None] = {}
     for report, spec_file in zip(reports, files):
-        repo = find_repository(spec_file.path.absolute())
+        folder = spec_file.path.absolute().parent
+        if folder not in by_folder:
+            by_folder[folder] = find_repository(folder)
+        repo = by_folder[folder]
         if repo is None:
             status.outside.append(report.path)
             continue
