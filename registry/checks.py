@@ -77,6 +77,7 @@ class SpecReport:
     at_planned: PowerAtN | None = None
     simulated: SimulatedPower | None = None
     problems_text: str = ""
+    history: Any = None  # registry.history.SpecHistory when the file is in a git repository
 
     @property
     def planned_per_group(self) -> int | None:
@@ -108,6 +109,8 @@ class SpecReport:
             return sorted(kinds)[0]
         if any(f.kind == "oversized" for f in self.findings):
             return "oversized"
+        if any(f.kind == "deleted" for f in self.findings):
+            return "deleted"
         return "ok"
 
     def to_dict(self) -> dict[str, Any]:
@@ -123,6 +126,7 @@ class SpecReport:
             "simulated_power": self.simulated.to_dict() if self.simulated else None,
             "verdict": self.verdict,
             "findings": [f.to_dict() for f in self.findings],
+            **({"history": self.history.summary()} if self.history is not None else {}),
         }
 
     def add(self, kind: str, severity: Severity, field: str, message: str, loc: tuple[Any, ...] = ()) -> None:

@@ -6,6 +6,7 @@ import argparse
 import sys
 from pathlib import Path
 
+from ..audit import add_history
 from ..checks import CAUTION, SpecReport, check_files
 from ..config import RegistryConfig, find_config, load_config
 from ..discovery import SpecFile, UsageError, discover
@@ -21,13 +22,16 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("paths", nargs="*", metavar="PATH", default=None,
                         help="registry folders and/or spec files (default: the current folder)")
     parser.add_argument("--json", action="store_true", help="print the results as JSON")
+    parser.add_argument("--no-history", action="store_true",
+                        help="skip the git history checks (drift, uncommitted edits, deleted specs)")
     parser.add_argument("--oversize-margin", type=float, default=None, metavar="FRACTION",
                         help="flag a design as oversized above required x (1 + FRACTION) "
                         "(default 0.25, or the registry's .prespec.yaml)")
 
 
 def run(args: argparse.Namespace) -> int:
-    return check(args.paths or ["."], as_json=args.json, oversize_margin=args.oversize_margin)
+    return check(args.paths or ["."], as_json=args.json, oversize_margin=args.oversize_margin,
+                 history=not args.no_history)
 
 
 def _config_loader(margin: float | None, errors: list[str]):
@@ -47,16 +51,21 @@ def _config_loader(margin: float | None, errors: list[str]):
     return config_for
 
 
-def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | None = None) -> int:
+def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | None = None,
+          history: bool = True) -> int:
     """Check every spec under ``paths``; 0 when no error finding, 1 otherwise."""
     if oversize_margin is not None and not 0 <= oversize_margin <= 10:
         raise UsageError(f"--oversize-margin must be between 0 and 10; got {oversize_margin!r}")
     files = discover(paths)
     config_errors: list[str] = []
-    reports: list[SpecReport] = check_files(files, _config_loader(oversize_margin, config_errors))
+    config_for = _config_loader(oversize_margin, config_errors)
+    reports: list[SpecReport] = check_files(files, config_for)
+    status = add_history(reports, files, paths, config_for) if history else None
     failed = any(r.has_errors for r in reports) or bool(config_errors)
     if as_json:
-        print(to_json(reports, {"config_errors": config_errors} if config_errors else None))
+        extra: dict[str, object] = {"config_errors": config_errors} if config_errors else {}
+        extra["history"] = status.to_dict() if status else {"checked": False, "message": "skipped (--no-history)"}
+        print(to_json(reports, extra))
         return 1 if failed else 0
     out = console()
     for error in config_errors:
@@ -68,5 +77,9 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
     print_findings(out, reports)
     out.print()
     out.print(summary_line(reports))
+    for problem in status.problems if status else ():
+        out.print(f"History not checked for {problem}")
+    if status is not None and status.message():
+        out.print(status.message())
     out.print(f"Note: {CAUTION}")
     return 1 if failed else 0

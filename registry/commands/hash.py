@@ -1,0 +1,37 @@
+"""``prespec hash``: the canonical content hash of a spec (and, on request, the canonical JSON)."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from ..audit import find_spec
+from ..canonical import canonical_json, content_hash
+
+__all__ = ["hash", "HELP", "add_arguments", "run"]
+
+HELP = "print a spec's canonical content hash (SHA-256 of its locked fields as canonical JSON)"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("spec", metavar="ID|FILE", help="a spec file, or the id of a spec under PATH")
+    parser.add_argument("paths", nargs="*", metavar="PATH", help="where to look for an id (default: .)")
+    parser.add_argument("--canonical", action="store_true", help="also print the canonical JSON that is hashed")
+
+
+def run(args: argparse.Namespace) -> int:
+    return hash(args.spec, args.paths or ["."], canonical=args.canonical)
+
+
+def hash(target: str, paths: list[str], *, canonical: bool = False) -> int:  # noqa: A001 - command name
+    _, report = find_spec(target, paths)
+    if report.spec is None:
+        print(f"{report.path}: not a valid spec, so it has no canonical content:", file=sys.stderr)
+        for finding in report.findings:
+            where = f"{report.path}:{finding.line}" if finding.line else report.path
+            print(f"  {where}: {finding.field + ': ' if finding.field else ''}{finding.message}", file=sys.stderr)
+        return 1
+    if canonical:
+        print(canonical_json(report.spec))
+    print(f"{content_hash(report.spec)}  {report.spec.id}  {report.path}")
+    return 0

@@ -1,0 +1,388 @@
+"""Everything prespec asks of git, in one place: the only module that runs git.
+
+All calls go through gitpython with argument lists (never a shell), with ``--``
+before paths. The history of every spec is read in one ``git log --raw`` pass over
+the commits reachable from HEAD; blob contents come through gitpython's persistent
+``git cat-file --batch`` reader, so no git process is started per file or per version.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+from datetime import datetime, timezone
+from pathlib import Path
+
+import git
+from git.exc import GitCommandError, InvalidGitRepositoryError, NoSuchPathError
+
+__all__ = [
+    "Commit",
+    "FileChange",
+    "LogEntry",
+    "TagInfo",
+    "Repository",
+    "GitProblem",
+    "find_repository",
+    "init_repository",
+    "NULL_SHA",
+]
+
+NULL_SHA = "0" * 40
+_MARK = "\x1e"
+#: One record per commit: the marker, then NUL-separated fields (names may hold any other byte).
+_FORMAT = "%x1e%H%x00%P%x00%an%x00%ae%x00%aI%x00%cn%x00%ce%x00%cI%x00"
+
+
+class GitProblem(RuntimeError):
+    """git could not do what prespec asked; the message says what and why."""
+
+
+@dataclass(frozen=True)
+class Commit:
+    """One commit's identity and dates (timezone-aware, in the offsets git recorded)."""
+
+    sha: str
+    parents: tuple[str, ...]
+    author_name: str
+    author_email: str
+    author_date: datetime
+    committer_name: str
+    committer_email: str
+    committer_date: datetime
+
+    @property
+    def short(self) -> str:
+        return self.sha[:10]
+
+    @property
+    def author(self) -> str:
+        return f"{self.author_name} <{self.author_email}>"
+
+    @property
+    def committer(self) -> str:
+        return f"{self.committer_name} <{self.committer_email}>"
+
+    def to_dict(self) -> dict[str, object]:
+        return {"commit": self.sha, "author": self.author, "author_date": self.author_date.isoformat(),
+                "committer": self.committer, "committer_date": self.committer_date.isoformat()}
+
+
+@dataclass(frozen=True)
+class FileChange:
+    """One file's change in one commit against its first parent (``None``: absent on that side)."""
+
+    old_path: str | None
+    new_path: str | None
+    old_blob: str | None
+    new_blob: str | None
+
+
+@dataclass(frozen=True)
+class LogEntry:
+    commit: Commit
+    changes: tuple[FileChange, ...]
+
+
+@dataclass(frozen=True)
+class TagInfo:
+    """An annotated (or lightweight) tag and what it points at."""
+
+    name: str
+    commit: str
+    annotated: bool
+    message: str
+    tagger: str | None
+    tagged_date: datetime | None
+    reachable: bool
+
+
+def _date(text: str) -> datetime:
+    return datetime.fromisoformat(text.strip().replace("Z", "+00:00"))
+
+
+def _parse_log(raw: bytes, suffixes: tuple[str, ...]) -> list[LogEntry]:
+    tokens = raw.split(b"\0")
+    entries: list[LogEntry] = []
+    i, count = 0, len(tokens)
+    commit: Commit | None = None
+    changes: list[FileChange] = []
+    mark = _MARK.encode()
+    while i < count:
+        token = tokens[i]
+        if token[:1] == b"\n":
+            token = token.lstrip(b"\n")
+        if token[:1] == mark:
+            if commit is not None:
+                entries.append(LogEntry(commit, tuple(changes)))
+            fields = [token[1:], *tokens[i + 1:i + 8]]
+            if len(fields) < 8:
+                raise GitProblem("git log ended in the middle of a commit record")
+            sha, parents, an, ae, ad, cn, ce, cd = (f.decode("utf-8", "replace") for f in fields)
+            commit = Commit(sha, tuple(parents.split()), an, ae, _date(ad), cn, ce, _date(cd))
+            changes = []
+            i += 8
+            continue
+        if token.startswith(b":") and commit is not None:
+            meta = token.decode("ascii", "replace").split()
+            path = tokens[i + 1].decode("utf-8", "surrogateescape") if i + 1 < count else ""
+            i += 2
+            parents = token.count(b":", 0, len(token) - len(token.lstrip(b":")))
+            if parents != 1 or len(meta) < 5 or not path.endswith(suffixes):
+                continue
+            old_mode, new_mode, old_blob, new_blob = meta[0][1:], meta[1], meta[2], meta[3]
+            old_present = old_blob != NULL_SHA and not old_mode.startswith("16")
+            new_present = new_blob != NULL_SHA and not new_mode.startswith("16")
+            if old_mode.startswith("12") or new_mode.startswith("12"):
+                continue  # symbolic links are not spec files
+            changes.append(FileChange(path if old_present else None, path if new_present else None,
+                                      old_blob if old_present else None, new_blob if new_present else None))
+            continue
+        i += 1
+    if commit is not None:
+        entries.append(LogEntry(commit, tuple(changes)))
+    return entries
+
+
+class Repository:
+    """A git working tree prespec reads (and, for ``freeze`` and ``demo``, writes)."""
+
+    def __init__(self, repo: git.Repo) -> None:
+        self._repo = repo
+        if repo.working_tree_dir is None:
+            raise GitProblem(f"{repo.git_dir} is a bare repository; prespec needs a working tree")
+        self.root = Path(repo.working_tree_dir).resolve()
+
+    # -- reading ---------------------------------------------------------------------------------
+    def relpath(self, path: Path) -> str | None:
+        """``path`` relative to the repository root, in git's slash form; ``None`` when outside."""
+        try:
+            return Path(os.path.abspath(path)).resolve().relative_to(self.root).as_posix()
+        except ValueError:
+            return None
+
+    def _run(self, *args: str, **kwargs: object) -> str:
+        try:
+            return self._repo.git.execute(["git", *args], **kwargs)  # type: ignore[call-overload]
+        except GitCommandError as error:
+            detail = (error.stderr or "").strip().replace("stderr: ", "").strip("'\n ")
+            raise GitProblem(f"git {args[0]} failed: {detail or error}") from None
+
+    def head(self) -> str | None:
+        """The commit HEAD points at, or ``None`` in a repository without commits."""
+        try:
+            return self._repo.head.commit.hexsha
+        except ValueError:
+            return None
+
+    def is_shallow(self) -> bool:
+        return self._run("rev-parse", "--is-shallow-repository").strip() == "true"
+
+    def log(self, suffixes: tuple[str, ...] = (".yaml", ".yml"), rev: str = "HEAD") -> list[LogEntry]:
+        """Every commit reachable from ``rev``, oldest first (parents before children), with the
+        files ending in ``suffixes`` each changed against its first parent. One git process."""
+        if self.head() is None:
+            return []
+        raw = self._run("log", "--topo-order", "--reverse", "--no-color", "--raw", "--no-abbrev", "-z",
+                        "--no-renames", "--no-ext-diff", "--no-textconv", f"--format={_FORMAT}", rev, "--",
+                        stdout_as_string=False, strip_newline_in_stdout=False)
+        return _parse_log(raw, suffixes)  # type: ignore[arg-type]
+
+    def read_blob(self, sha: str) -> bytes:
+        return self._repo.odb.stream(bytes.fromhex(sha)).read()
+
+    def read_blobs(self, shas: list[str]) -> dict[str, bytes]:
+        """Many blobs at once through one ``git cat-file --batch``."""
+        import tempfile
+
+        if not shas:
+            return {}
+        with tempfile.TemporaryFile() as handle:
+            handle.write("".join(f"{sha}\n" for sha in shas).encode("ascii"))
+            handle.seek(0)
+            raw = self._run("cat-file", "--batch", istream=handle, stdout_as_string=False,
+                            strip_newline_in_stdout=False)
+        out: dict[str, bytes] = {}
+        view = memoryview(raw)  # type: ignore[arg-type]
+        pos = 0
+        while pos < len(raw):  # type: ignore[arg-type]
+            end = raw.index(b"\n", pos)  # type: ignore[union-attr]
+            header = bytes(view[pos:end]).split()
+            pos = end + 1
+            if len(header) < 3:  # "<sha> missing"
+                continue
+            size = int(header[2])
+            out[header[0].decode()] = bytes(view[pos:pos + size])
+            pos += size + 1
+        return out
+
+    def tree_files(self, rev: str = "HEAD", suffixes: tuple[str, ...] = (".yaml", ".yml")) -> dict[str, str]:
+        """Path -> blob id of the regular files ending in ``suffixes`` in ``rev``'s tree."""
+        if self.head() is None:
+            return {}
+        raw = self._run("ls-tree", "-r", "-z", "--full-tree", rev, stdout_as_string=False)
+        out: dict[str, str] = {}
+        for record in raw.split(b"\0"):  # type: ignore[union-attr]
+            if not record:
+                continue
+            meta, _, path_bytes = record.partition(b"\t")
+            mode, kind, sha = meta.decode().split()
+            path = path_bytes.decode("utf-8", "surrogateescape")
+            if kind == "blob" and not mode.startswith("12") and path.endswith(suffixes):
+                out[path] = sha
+        return out
+
+    def blob_at(self, rev: str, path: str) -> bytes | None:
+        """The content of ``path`` in ``rev`` (``None`` when it is not there)."""
+        try:
+            commit = self._repo.commit(rev)
+            return commit.tree[path].data_stream.read()
+        except (KeyError, ValueError, git.BadName):
+            return None
+
+    def commit_info(self, rev: str) -> Commit:
+        raw = self._run("log", "-1", "--no-color", f"--format={_FORMAT}", rev, "--",
+                        stdout_as_string=False, strip_newline_in_stdout=False)
+        entries = _parse_log(raw, ())  # type: ignore[arg-type]
+        if not entries:
+            raise GitProblem(f"no commit {rev!r}")
+        return entries[0].commit
+
+    def ancestors(self, rev: str) -> set[str]:
+        """Every commit reachable from ``rev`` (itself included)."""
+        return set(self._run("rev-list", rev, "--").split())
+
+    def dirty_paths(self) -> list[str]:
+        """Tracked files with uncommitted changes (staged or not), repository-relative."""
+        if self.head() is None:
+            return []
+        raw = self._run("status", "--porcelain=v1", "-z", "--untracked-files=no", stdout_as_string=False)
+        out = []
+        for record in raw.split(b"\0"):  # type: ignore[union-attr]
+            if len(record) > 3 and record[:2] != b"  ":
+                out.append(record[3:].decode("utf-8", "surrogateescape"))
+        return out
+
+    def is_tracked(self, relpath: str) -> bool:
+        return bool(self._run("ls-files", "--", relpath).strip())
+
+    def config_value(self, key: str) -> str | None:
+        try:
+            return self._repo.git.execute(["git", "config", "--get", key]).strip() or None
+        except GitCommandError:
+            return None
+
+    def signing_configured(self) -> bool:
+        """Whether the user's git config asks for signed tags (tag.gpgSign) or names a signing key."""
+        sign = (self.config_value("tag.gpgSign") or "").lower()
+        return sign in ("true", "yes", "on", "1") or self.config_value("user.signingkey") is not None
+
+    def tags(self, pattern: str) -> list[TagInfo]:
+        """Tags matching the ``refs/tags/`` glob ``pattern``, each marked reachable from HEAD or not."""
+        fmt = "%(refname:strip=2)%00%(objecttype)%00%(objectname)%00%(*objectname)"
+        listing = self._run("for-each-ref", f"--format={fmt}", f"refs/tags/{pattern}")
+        reachable: set[str] = set()
+        if self.head() is not None:
+            reachable = set(self._run("for-each-ref", "--merged", "HEAD", "--format=%(refname:strip=2)",
+                                      f"refs/tags/{pattern}").split("\n"))
+        out = []
+        for line in listing.splitlines():
+            name, kind, obj, peeled = (line.split("\0") + ["", "", ""])[:4]
+            if kind == "tag":
+                tag = self._repo.tags[name].tag
+                tagged = datetime.fromtimestamp(tag.tagged_date, timezone.utc).astimezone(
+                    _offset(tag.tagger_tz_offset))
+                out.append(TagInfo(name, peeled or tag.object.hexsha, True, tag.message,
+                                   f"{tag.tagger.name} <{tag.tagger.email}>", tagged, name in reachable))
+            else:
+                out.append(TagInfo(name, obj, False, "", None, None, name in reachable))
+        return out
+
+    # -- writing ---------------------------------------------------------------------------------
+    def create_tag(self, name: str, rev: str, message: str, *, sign: bool,
+                   env: dict[str, str] | None = None) -> None:
+        """An annotated tag (signed with ``-s`` when ``sign``) on ``rev``."""
+        self._run("tag", "-s" if sign else "-a", "-m", message, "--", name, rev, env=env)
+
+    def commit_all(self, message: str, *, author: tuple[str, str], date: str,
+                   committer: tuple[str, str] | None = None, committer_date: str | None = None) -> str:
+        """Stage every change in the working tree and commit it with pinned names and dates."""
+        committer = committer or author
+        env = {"GIT_AUTHOR_NAME": author[0], "GIT_AUTHOR_EMAIL": author[1], "GIT_AUTHOR_DATE": date,
+               "GIT_COMMITTER_NAME": committer[0], "GIT_COMMITTER_EMAIL": committer[1],
+               "GIT_COMMITTER_DATE": committer_date or date}
+        self._run("add", "-A", "--", ".")
+        self._run("commit", "-q", "--no-verify", "--allow-empty", "-m", message, env={**os.environ, **env})
+        return self.head() or ""
+
+    def tag_with_dates(self, name: str, rev: str, message: str, *, tagger: tuple[str, str], date: str) -> None:
+        env = {**os.environ, "GIT_COMMITTER_NAME": tagger[0], "GIT_COMMITTER_EMAIL": tagger[1],
+               "GIT_COMMITTER_DATE": date}
+        self.create_tag(name, rev, message, sign=False, env=env)
+
+    def delete_tag(self, name: str) -> None:
+        self._run("tag", "-d", "--", name)
+
+    def reset_hard(self, rev: str) -> None:
+        self._run("reset", "-q", "--hard", rev, "--")
+
+    def fast_import(self, stream: bytes) -> None:
+        """Feed a ``git fast-import`` stream (used to build large test histories quickly)."""
+        import tempfile
+
+        with tempfile.TemporaryFile() as handle:
+            handle.write(stream)
+            handle.seek(0)
+            self._run("fast-import", "--quiet", istream=handle)
+
+    def log_patch_bytes(self) -> int:
+        """Run ``git log -p`` over HEAD's history (a reference for benchmarks); the output size."""
+        raw = self._run("log", "-p", "--no-color", "--no-ext-diff", "HEAD", "--", stdout_as_string=False)
+        return len(raw)
+
+    def clone(self, target: Path, *, depth: int | None = None) -> "Repository":
+        """Clone this repository (through ``file://`` so ``depth`` makes a real shallow clone)."""
+        args = ["clone", "-q"]
+        if depth is not None:
+            args += ["--depth", str(depth)]
+        self._run(*args, "--", self.root.as_uri(), str(target))
+        return _configured(git.Repo(target))
+
+
+def _offset(seconds_west: int) -> timezone:
+    from datetime import timedelta
+
+    return timezone(timedelta(seconds=-seconds_west))
+
+
+def find_repository(path: Path) -> Repository | None:
+    """The git working tree containing ``path`` (like ``git rev-parse --show-toplevel``), or ``None``."""
+    start = Path(path)
+    start = start if start.is_dir() else start.parent
+    try:
+        repo = git.Repo(start, search_parent_directories=True)
+    except (InvalidGitRepositoryError, NoSuchPathError):
+        return None
+    if repo.bare or repo.working_tree_dir is None:
+        return None
+    return Repository(repo)
+
+
+def _configured(repo: git.Repo) -> Repository:
+    with repo.config_writer() as config:
+        config.set_value("user", "name", "prespec")
+        config.set_value("user", "email", "prespec@example.invalid")
+        config.set_value("commit", "gpgsign", "false")
+        config.set_value("tag", "gpgSign", "false")
+    return Repository(repo)
+
+
+def init_repository(path: Path) -> Repository:
+    """``git init`` a new repository whose local config does not depend on the user's global one."""
+    Path(path).mkdir(parents=True, exist_ok=True)
+    repo = git.Repo.init(path, initial_branch="main") if _supports_initial_branch() else git.Repo.init(path)
+    return _configured(repo)
+
+
+def _supports_initial_branch() -> bool:
+    return git.Git().version_info >= (2, 28)

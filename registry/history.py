@@ -1,0 +1,628 @@
+"""Design drift from a spec's versions: versions in, findings out.
+
+This module runs no git and reads no files. :mod:`registry.audit` hands it the log
+(:class:`registry.git.LogEntry` records, oldest first) and a function that returns a
+blob's bytes; it follows each spec by its ``id`` (so a moved or renamed file keeps its
+history), compares versions field by field on parsed, validated values (comments, key
+order, layout and number spelling are never changes), and decides:
+
+- ``drift`` (error): a locked field changed in a commit dated on or after the start
+  of data collection, with no amendment entry added in that same commit covering it;
+- ``amended`` (info): such a change, covered by an amendment added in the same commit;
+- ``uncommitted``: working-tree edits of locked fields against HEAD;
+- ``incomplete-history``: a shallow clone, or a first version already after the start;
+- ``date-order``: a commit dated before its parent.
+
+A commit's date is its committer date, read as the calendar date in the offset the
+committer recorded (docs/reviewer-guide.md explains why, and the limits).
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable, Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from datetime import date, datetime
+from typing import Any
+
+from pydantic import BaseModel
+
+from .canonical import locked_view
+from .checks import Finding
+from .git import Commit, LogEntry
+from .model import Spec, locked_paths
+from .problems import InvalidSpec
+from .validation import validate_document
+from .yamlio import load_bytes_fast, peek_scalars
+
+__all__ = [
+    "MISSING",
+    "Snapshot",
+    "SnapshotStore",
+    "FieldChange",
+    "Revision",
+    "SpecHistory",
+    "Event",
+    "spec_events",
+    "analyze",
+    "diff",
+    "covers",
+    "commit_day",
+    "uncommitted_findings",
+    "show",
+    "show_change",
+    "dotted_loc",
+    "SPEC_KEYS",
+]
+
+
+class _Missing:
+    def __repr__(self) -> str:
+        return "MISSING"
+
+
+#: A field absent on one side of a comparison.
+MISSING: Any = _Missing()
+
+#: A YAML mapping with a text ``id`` and one of these keys is taken for a spec.
+SPEC_KEYS = frozenset({"design", "data_collection", "sample_size", "hypotheses"})
+
+_TOP_LOCKED = {name for name, is_locked in locked_paths(Spec).items() if is_locked}
+
+
+def commit_day(moment: datetime) -> date:
+    """The calendar date of a commit in the offset its committer recorded."""
+    return moment.date()
+
+
+def _plain(value: Any) -> Any:
+    """JSON-like values for comparison: every field of a model, integral floats as integers."""
+    if isinstance(value, BaseModel):
+        return {name: _plain(getattr(value, name)) for name in type(value).model_fields}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, bool) or value is None or isinstance(value, (str, int)):
+        return value
+    if isinstance(value, float):
+        return int(value) if value.is_integer() and abs(value) < 2**53 else value
+    if isinstance(value, date):
+        return value.isoformat()
+    return str(value)
+
+
+def dotted_loc(path: str) -> tuple[Any, ...]:
+    """``"hypotheses[0].statement"`` -> ``("hypotheses", 0, "statement")``."""
+    out: list[Any] = []
+    for part in path.split("."):
+        name, _, rest = part.partition("[")
+        if name:
+            out.append(name)
+        while rest:
+            index, _, rest = rest.partition("]")
+            if index.isdigit():
+                out.append(int(index))
+            rest = rest.lstrip("[")
+    return tuple(out)
+
+
+def _get(data: Any, loc: tuple[Any, ...]) -> Any:
+    for part in loc:
+        if isinstance(part, int) and isinstance(data, list) and part < len(data):
+            data = data[part]
+        elif isinstance(part, str) and isinstance(data, dict) and part in data:
+            data = data[part]
+        else:
+            return MISSING
+    return data
+
+
+def _put(target: dict[str, Any], loc: tuple[Any, ...], value: Any) -> None:
+    """Set ``value`` at a path of string keys (extra locked fields are named by dotted keys)."""
+    node = target
+    keys = [str(p) for p in loc]
+    for key in keys[:-1]:
+        child = node.get(key)
+        if not isinstance(child, dict):
+            child = node[key] = {}
+        node = child
+    node[keys[-1]] = value
+
+
+_PEEK = (("id",), ("data_collection", "start"))
+
+
+@dataclass
+class Snapshot:
+    """One version of one spec file: its bytes, parsed (and validated) only when needed.
+
+    ``id`` and ``start`` come from a cheap peek at the text where possible; the full parse
+    and validation happen only for versions that are compared.
+    """
+
+    blob: str
+    raw: bytes | None = None
+    _data: Any = field(default=None, repr=False)
+    _parsed: bool = field(default=False, repr=False)
+    _spec: Spec | None = field(default=None, repr=False)
+    _validated: bool = field(default=False, repr=False)
+    _peeked: dict[tuple[str, ...], str] | None = field(default=None, repr=False)
+    error: str | None = None
+
+    @classmethod
+    def of(cls, blob: str, data: Any, spec: Spec | None = None, source: str | None = None) -> "Snapshot":
+        """A snapshot of already loaded (and validated) content, e.g. the working tree's."""
+        return cls(blob, source.encode("utf-8") if source is not None else None, data, True, spec, spec is not None)
+
+    @property
+    def data(self) -> Any:
+        if not self._parsed:
+            self._parsed = True
+            try:
+                self._data = load_bytes_fast(self.raw or b"", self.blob).data
+            except InvalidSpec as error:
+                self.error = "; ".join(p.message for p in error.problems[:3])
+        return self._data
+
+    def _peek(self) -> dict[tuple[str, ...], str] | None:
+        if self._parsed or self.raw is None:
+            return None
+        if self._peeked is None:
+            self._peeked = peek_scalars(self.raw, _PEEK) or {}
+        return self._peeked if len(self._peeked) == len(_PEEK) else None
+
+    @property
+    def id(self) -> str | None:
+        peeked = self._peek()
+        if peeked is not None:
+            return peeked[("id",)]
+        data = self.data
+        if isinstance(data, dict) and isinstance(data.get("id"), str) and SPEC_KEYS & data.keys():
+            return data["id"]
+        return None
+
+    @property
+    def start(self) -> date | None:
+        """``data_collection.start`` as written (read without validating the rest)."""
+        peeked = self._peek()
+        value: Any = peeked[("data_collection", "start")] if peeked is not None else \
+            _get(self.data, ("data_collection", "start"))
+        if isinstance(value, date):
+            return value
+        try:
+            return date.fromisoformat(str(value).strip()) if isinstance(value, str) else None
+        except ValueError:
+            return None
+
+    @property
+    def spec(self) -> Spec | None:
+        """The validated spec, or ``None`` for an invalid version (validated once, when first asked)."""
+        if not self._validated:
+            self._validated = True
+            data = self.data
+            if isinstance(data, dict):
+                from .yamlio import Document
+
+                try:
+                    self._spec = validate_document(Document("", data, ""))
+                except InvalidSpec as error:
+                    self.error = "; ".join(p.message for p in error.problems[:3])
+        return self._spec
+
+    def locked(self, extra_locked: Sequence[str] = ()) -> dict[str, Any]:
+        """The locked fields as plain nested values (an invalid version gives its raw values)."""
+        spec = self.spec
+        if spec is not None and not extra_locked:
+            return locked_view(spec)
+        return self.views(extra_locked)[0]
+
+    def views(self, extra_locked: Sequence[str] = ()) -> tuple[dict[str, Any], dict[str, Any]]:
+        """(locked fields, all fields) as plain nested values; an invalid version gives its raw values."""
+        spec = self.spec
+        if spec is not None:
+            full = _plain(spec)
+            locked = locked_view(spec)
+        else:
+            full = _plain(self.data) if isinstance(self.data, dict) else {}
+            locked = {k: v for k, v in full.items() if k in _TOP_LOCKED}
+        for extra in extra_locked:  # a registry's own locked fields; an index locks the whole list
+            loc = dotted_loc(extra)
+            loc = loc[: next((i for i, part in enumerate(loc) if isinstance(part, int)), len(loc))]
+            value = _get(full, loc)
+            if loc and value is not MISSING and _get(locked, loc) != value:
+                _put(locked, loc, value)
+        return locked, full
+
+    def amendments(self) -> list[dict[str, Any]]:
+        spec = self.spec
+        raw = _plain(spec.amendments) if spec is not None else _get(self.data, ("amendments",))
+        return [a for a in raw if isinstance(a, dict)] if isinstance(raw, list) else []
+
+
+class SnapshotStore:
+    """Versions by blob id: every blob is read once (in bulk where possible) and parsed at most once."""
+
+    def __init__(self, read_blob: Callable[[str], bytes], blobs: Mapping[str, bytes] | None = None) -> None:
+        self._read = read_blob
+        self._blobs = dict(blobs or {})
+        self._cache: dict[str, Snapshot] = {}
+
+    def get(self, blob: str) -> Snapshot:
+        snap = self._cache.get(blob)
+        if snap is None:
+            raw = self._blobs.pop(blob, None)
+            snap = self._cache[blob] = Snapshot(blob, raw if raw is not None else self._read(blob))
+        return snap
+
+
+def diff(old: Any, new: Any, path: str = "") -> list[tuple[str, Any, Any]]:
+    """Leaf-level differences; lists of different length differ as a whole."""
+    if isinstance(old, dict) and isinstance(new, dict):
+        out = []
+        for key in list(old) + [k for k in new if k not in old]:
+            child = f"{path}.{key}" if path else str(key)
+            out += diff(old.get(key, MISSING), new.get(key, MISSING), child)
+        return out
+    if isinstance(old, list) and isinstance(new, list) and len(old) == len(new):
+        out = []
+        for i, (a, b) in enumerate(zip(old, new)):
+            out += diff(a, b, f"{path}[{i}]")
+        return out
+    if old is MISSING and new is MISSING:
+        return []
+    if type(old) is type(new) and old == new:
+        return []
+    if isinstance(old, (int, float)) and isinstance(new, (int, float)) and not isinstance(old, bool) \
+            and not isinstance(new, bool) and old == new:
+        return []
+    return [(path, old, new)]
+
+
+def covers(amended_field: str, changed: str) -> bool:
+    """Whether an amendment's dotted path covers a changed field (a parent covers its children)."""
+    amended_field = amended_field.strip()
+    return changed == amended_field or changed.startswith(amended_field + ".") or \
+        changed.startswith(amended_field + "[")
+
+
+def show(value: Any, width: int = 60) -> str:
+    """A short, unambiguous rendering of a field value for messages."""
+    if value is MISSING:
+        return "(absent)"
+    if value is None:
+        return "null"
+    text = json.dumps(value, ensure_ascii=False, sort_keys=True) if not isinstance(value, (int, float)) \
+        or isinstance(value, bool) else f"{value:g}" if isinstance(value, float) else str(value)
+    return text if len(text) <= width else text[: width - 3] + "..."
+
+
+def show_change(old: Any, new: Any) -> str:
+    """``old -> new`` for messages; for lists, the items added and removed.
+
+    >>> show_change(0.05, 0.1)
+    '0.05 -> 0.1'
+    >>> show_change(["a", "b"], ["a", "b", "c"])
+    '2 -> 3 items: added "c"'
+    """
+    if isinstance(old, list) and isinstance(new, list):
+        key = lambda v: json.dumps(v, sort_keys=True, default=str)  # noqa: E731
+        before, after = [key(v) for v in old], [key(v) for v in new]
+        added = [show(v) for v, k in zip(new, after) if k not in before]
+        removed = [show(v) for v, k in zip(old, before) if k not in after]
+        parts = ([f"added {'; '.join(added)}"] if added else []) + ([f"removed {'; '.join(removed)}"] if removed else [])
+        return f"{len(old)} -> {len(new)} items" + (": " + ", ".join(parts) if parts else " (reordered)")
+    return f"{show(old)} -> {show(new)}"
+
+
+@dataclass(frozen=True)
+class FieldChange:
+    """One field's change in one commit."""
+
+    field: str
+    old: Any
+    new: Any
+    locked: bool
+    after_start: bool
+    amendment: dict[str, Any] | None = None
+
+    @property
+    def amended(self) -> bool:
+        return self.amendment is not None
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"field": self.field, "old": None if self.old is MISSING else self.old,
+                "new": None if self.new is MISSING else self.new, "old_absent": self.old is MISSING,
+                "new_absent": self.new is MISSING, "locked": self.locked, "after_start": self.after_start,
+                "amended": self.amended, "amendment": self.amendment}
+
+
+@dataclass(frozen=True)
+class Event:
+    """What one commit did to one spec: its version before (``None``: not there) and after."""
+
+    commit: Commit
+    old_path: str | None
+    new_path: str | None
+    old_blob: str | None
+    new_blob: str | None
+
+
+@dataclass(frozen=True)
+class Revision:
+    """One commit in a spec's history, with the field changes it made."""
+
+    commit: Commit
+    action: str  # added, modified, moved, removed, re-added
+    path: str | None
+    old_path: str | None
+    start: date | None
+    after_start: bool
+    changes: tuple[FieldChange, ...] = ()
+    compared: bool = True
+
+    def to_dict(self) -> dict[str, Any]:
+        return {**self.commit.to_dict(), "action": self.action, "path": self.path, "old_path": self.old_path,
+                "start": self.start.isoformat() if self.start else None, "after_start": self.after_start,
+                "changes": [c.to_dict() for c in self.changes]}
+
+
+@dataclass
+class SpecHistory:
+    """Everything git history says about one spec id."""
+
+    id: str
+    revisions: list[Revision] = field(default_factory=list)
+    findings: list[Finding] = field(default_factory=list)
+    start: date | None = None
+    started_on: date | None = None
+    shallow: bool = False
+    last_path: str | None = None
+
+    @property
+    def first(self) -> Commit | None:
+        return self.revisions[0].commit if self.revisions else None
+
+    @property
+    def last(self) -> Commit | None:
+        return self.revisions[-1].commit if self.revisions else None
+
+    @property
+    def verdict(self) -> str:
+        """``drift``, ``incomplete`` (history cannot rule drift out), ``amended`` or ``clean``."""
+        kinds = {f.kind for f in self.findings}
+        if "drift" in kinds:
+            return "drift"
+        if "incomplete-history" in kinds:
+            return "incomplete"
+        return "amended" if "amended" in kinds else "clean"
+
+    def summary(self) -> dict[str, Any]:
+        """The verdict and provenance in a few keys (``check --json`` shows it per spec)."""
+        last = self.last
+        return {"verdict": self.verdict, "versions": len(self.revisions),
+                "start": self.start.isoformat() if self.start else None,
+                "started_on": self.started_on.isoformat() if self.started_on else None,
+                "last_commit": last.sha if last else None,
+                "last_commit_date": last.committer_date.isoformat() if last else None,
+                "last_path": self.last_path, "shallow": self.shallow}
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"id": self.id, "verdict": self.verdict, "start": self.start.isoformat() if self.start else None,
+                "started_on": self.started_on.isoformat() if self.started_on else None, "shallow": self.shallow,
+                "last_path": self.last_path, "revisions": [r.to_dict() for r in self.revisions],
+                "findings": [f.to_dict() for f in self.findings]}
+
+
+def spec_events(log: Iterable[LogEntry], store: SnapshotStore) -> dict[str, list[Event]]:
+    """Follow every spec through the log by its ``id``: per id, the commits that touched it, oldest first.
+
+    Within one commit an old and a new version with the same id are paired, wherever they live,
+    so a move (and a move plus an edit) is one event. A version git cannot parse keeps the id its
+    path held before.
+    """
+    path_ids: dict[str, str] = {}
+    events: dict[str, list[Event]] = {}
+    for entry in log:
+        if not entry.changes:
+            continue
+        olds: dict[str, list[tuple[str, str]]] = {}
+        news: dict[str, list[tuple[str, str]]] = {}
+        for change in entry.changes:
+            if change.old_path and change.old_blob:
+                spec_id = store.get(change.old_blob).id or path_ids.get(change.old_path)
+                if spec_id:
+                    olds.setdefault(spec_id, []).append((change.old_path, change.old_blob))
+            if change.new_path and change.new_blob:
+                snap = store.get(change.new_blob)
+                spec_id = snap.id or (path_ids.get(change.new_path) if snap.data is None else None)
+                if spec_id:
+                    news.setdefault(spec_id, []).append((change.new_path, change.new_blob))
+        for change in entry.changes:
+            if change.old_path and not change.new_path:
+                path_ids.pop(change.old_path, None)
+        for spec_id in list(olds) + [k for k in news if k not in olds]:
+            before, after = list(olds.get(spec_id, [])), list(news.get(spec_id, []))
+            pairs: list[tuple[tuple[str, str] | None, tuple[str, str] | None]] = []
+            for new in list(after):  # same path first
+                match = next((old for old in before if old[0] == new[0]), None)
+                if match:
+                    pairs.append((match, new))
+                    before.remove(match)
+                    after.remove(new)
+            while before and after:
+                pairs.append((before.pop(0), after.pop(0)))
+            pairs += [(old, None) for old in before] + [(None, new) for new in after]
+            for old, new in pairs:
+                if new:
+                    path_ids[new[0]] = spec_id
+                events.setdefault(spec_id, []).append(Event(
+                    entry.commit, old[0] if old else None, new[0] if new else None,
+                    old[1] if old else None, new[1] if new else None))
+    return events
+
+
+def _short_date(moment: datetime) -> str:
+    return moment.isoformat(timespec="minutes")
+
+
+def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
+            extra_locked: Sequence[str] = (), shallow: bool = False, detail: bool = False,
+            commit_dates: Mapping[str, datetime] | None = None) -> SpecHistory:
+    """The field-level history of one spec and its drift findings.
+
+    ``detail`` compares every version (for the changelog); otherwise only commits on or after
+    the start are compared, since only they can drift. ``commit_dates`` (sha -> committer date,
+    every commit) lets a commit dated before its parent be flagged.
+    """
+    history = SpecHistory(spec_id, shallow=shallow)
+    previous: Snapshot | None = None
+    started: date | None = None
+    for index, event in enumerate(events):
+        commit = event.commit
+        old = store.get(event.old_blob) if event.old_blob else None
+        new = store.get(event.new_blob) if event.new_blob else None
+        base = old or previous
+        start = (base.start if base is not None else None) or (new.start if new is not None else None)
+        day = commit_day(commit.committer_date)
+        if started is None and start is not None and day >= start:
+            started = start
+        after = started is not None
+        if old is None and new is not None:
+            action = "added" if previous is None else "re-added"
+        elif new is None:
+            action = "removed"
+        else:
+            action = "moved" if event.old_path != event.new_path else "modified"
+        changes: list[FieldChange] = []
+        compared = base is not None and new is not None and (after or detail)
+        if compared:
+            assert base is not None and new is not None
+            changes = _changes(base, new, extra_locked, after, free=detail)
+            for change in changes:
+                if change.locked and after:
+                    history.findings.append(_drift_finding(change, commit, started))
+        if index == 0 and action == "added" and after and not shallow:
+            history.findings.append(Finding(
+                "incomplete-history", "warning", "data_collection.start", None,
+                f"the first version in git history is commit {commit.short} of {_short_date(commit.committer_date)}, "
+                f"on or after the start of data collection ({start}); the design before the start is not in the "
+                "history, so drift cannot be ruled out"))
+        if commit_dates is not None:
+            history.findings += _date_order(commit, commit_dates)
+        history.revisions.append(Revision(commit, action, event.new_path, event.old_path, start, after,
+                                          tuple(changes), compared))
+        previous = new or old
+        if new is not None:
+            history.last_path = event.new_path
+        elif history.last_path is None:
+            history.last_path = event.old_path
+    history.start = previous.start if previous is not None else None
+    history.started_on = started
+    if shallow and history.revisions:
+        first = history.revisions[0].commit
+        history.findings.append(Finding(
+            "incomplete-history", "warning", "", None,
+            f"the repository is a shallow clone: its history stops at commit {first.short} "
+            f"({_short_date(first.committer_date)}), so earlier changes cannot be seen and drift cannot be ruled "
+            "out; fetch the full history (git fetch --unshallow) and check again"))
+    return history
+
+
+def _changes(base: Snapshot, new: Snapshot, extra_locked: Sequence[str], after: bool,
+             free: bool = True) -> list[FieldChange]:
+    if base.raw is not None and base.raw == new.raw:
+        return []
+    if free:
+        locked_old, full_old = base.views(extra_locked)
+        locked_new, full_new = new.views(extra_locked)
+    else:
+        locked_old, locked_new = base.locked(extra_locked), new.locked(extra_locked)
+        full_old = full_new = {}
+    before_keys = {json.dumps(a, sort_keys=True, default=str) for a in base.amendments()}
+    added = [a for a in new.amendments() if json.dumps(a, sort_keys=True, default=str) not in before_keys]
+    out: list[FieldChange] = []
+    locked_fields: list[str] = []
+    for path, old_value, new_value in diff(locked_old, locked_new):
+        if path == "id":
+            continue  # identity: a changed id is a new spec
+        amendment = _covering(added, path)
+        out.append(FieldChange(path, old_value, new_value, True, after, amendment))
+        locked_fields.append(path)
+    for path, old_value, new_value in diff(full_old, full_new):
+        if any(path == p or covers(p, path) or covers(path, p) for p in locked_fields):
+            continue
+        if _get(locked_new, dotted_loc(path)) is not MISSING or _get(locked_old, dotted_loc(path)) is not MISSING:
+            continue
+        out.append(FieldChange(path, old_value, new_value, False, after, None))
+    return out
+
+
+def _covering(added: list[dict[str, Any]], path: str) -> dict[str, Any] | None:
+    for amendment in added:
+        fields = amendment.get("fields")
+        if isinstance(fields, list) and any(isinstance(f, str) and covers(f, path) for f in fields):
+            return amendment
+    return None
+
+
+def _drift_finding(change: FieldChange, commit: Commit, started: date | None) -> Finding:
+    what = (f"{change.field} changed {show_change(change.old, change.new)} in commit {commit.short} on "
+            f"{_short_date(commit.committer_date)} by {commit.author}, after data collection started ({started})")
+    if change.amendment is not None:
+        reason = str(change.amendment.get("reason", "")).strip()
+        return Finding("amended", "info", change.field, None,
+                       f"{what}; covered by the amendment of {change.amendment.get('date')} added in the same "
+                       f"commit: {show(reason, 100)}")
+    return Finding("drift", "error", change.field, None,
+                   f"{what}, with no amendment entry covering it added in that commit; a locked field may change "
+                   "after the start only together with an entry under 'amendments' listing it in 'fields'")
+
+
+def _date_order(commit: Commit, commit_dates: Mapping[str, datetime]) -> list[Finding]:
+    out = []
+    for parent in commit.parents:
+        parent_date = commit_dates.get(parent)
+        if parent_date is not None and commit.committer_date < parent_date:
+            out.append(Finding(
+                "date-order", "warning", "", None,
+                f"commit {commit.short} is dated {_short_date(commit.committer_date)}, before its parent "
+                f"{parent[:10]} ({_short_date(parent_date)}); its date was set by hand or by a wrong clock, so the "
+                "history's dates are not reliable evidence of when this change was made"))
+    return out
+
+
+def uncommitted_findings(head: Snapshot | None, work: Snapshot, today: date, *,
+                         extra_locked: Sequence[str] = (), started_on: date | None = None) -> list[Finding]:
+    """Locked fields whose working-tree value differs from HEAD's (``head`` ``None``: never committed).
+
+    An error once data collection has started (unless an amendment added in the working tree
+    covers the change: then a warning to commit them together), a warning before.
+    """
+    start = started_on or (head.start if head is not None else None) or work.start
+    after = start is not None and today >= start
+    if head is None:
+        if after:
+            return [Finding("uncommitted", "error", "", None,
+                            f"this spec is not committed, and data collection started on {start}: the registry "
+                            "has no record of the design before the start; commit it and explain the delay")]
+        return [Finding("uncommitted", "warning", "", None,
+                        "this spec is not committed yet; commit it before data collection starts"
+                        + (f" ({start})" if start else ""))]
+    out = []
+    for change in _changes(head, work, extra_locked, after, free=False):
+        if not change.locked:
+            continue
+        what = f"{change.field} changed {show_change(change.old, change.new)} in the working tree (not committed)"
+        if not after:
+            out.append(Finding("uncommitted", "warning", change.field, None,
+                               f"{what}; commit it before data collection starts ({start})"))
+        elif change.amended:
+            out.append(Finding("uncommitted", "warning", change.field, None,
+                               f"{what}, after data collection started ({start}); an amendment in the working tree "
+                               "covers it: commit the change and the amendment together"))
+        else:
+            out.append(Finding("uncommitted", "error", change.field, None,
+                               f"{what}, after data collection started ({start}), with no new amendment entry "
+                               "covering it; add one under 'amendments' or undo the edit"))
+    return out
