@@ -26,10 +26,12 @@ class SpecFile:
 
 
 def _display(path: Path) -> str:
+    """The path as the user will recognise it: relative below the current folder, else absolute."""
     try:
-        return os.path.relpath(path)
+        relative = os.path.relpath(path)
     except ValueError:
-        return str(path)
+        return str(path.absolute())
+    return str(path.absolute()) if relative.startswith("..") else relative
 
 
 def discover(paths: list[str]) -> list[SpecFile]:
