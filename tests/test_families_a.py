@@ -377,7 +377,7 @@ _MONOTONE = {
     "welch-t": lambda e: dict(difference=e, sd1=1.0, sd2=1.7),
     "one-way-anova": lambda e: dict(f=e / 2, groups=3),
     "two-proportions": lambda e: dict(p1=0.2, p2=0.2 + e / 3),
-    "correlation": lambda e: dict(r=e / 2),
+    "correlation": lambda e: dict(r=e / 2.2),  # effects reach 2.1, so r stays below 1
     "chi-square": lambda e: dict(w=e / 2, df=3),
     "linear-regression": lambda e: dict(f2=e * e / 4, predictors=3, total_predictors=5),
 }
