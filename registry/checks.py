@@ -7,19 +7,22 @@ the results and ``report.py`` formats them.
 from __future__ import annotations
 
 import math
+import re
 from collections import defaultdict
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
 from .config import RegistryConfig
 from .discovery import SpecFile
-from .model import Spec
+from .model import ID_PATTERN, Spec
 from .power import InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
 from .problems import InvalidSpec
 from .validation import validate_document
 from .yamlio import Document, load_file
 
 __all__ = ["Finding", "SpecReport", "check_file", "check_files", "Severity", "CAUTION", "RECOMMENDED_FIELDS"]
+
+_ID_RE = re.compile(ID_PATTERN)
 
 Severity = Literal["error", "warning", "info"]
 
@@ -138,9 +141,8 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
     """Load, validate and size one spec file. Never raises for a bad file: it becomes findings."""
     config = config or RegistryConfig()
     report = SpecReport(path=spec_file.display)
-    if spec_file.outside:
-        report.add("invalid", "error", "", "is a symbolic link to a file outside the registry; "
-                   "specs must live inside the registry folder")
+    if spec_file.refusal:
+        report.add("invalid", "error", "", spec_file.refusal)
         return report
     try:
         report.document = load_file(spec_file.path, spec_file.display)
@@ -148,8 +150,8 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
         _invalid(report, error)
         return report
     data = report.document.data
-    if isinstance(data.get("id"), str):
-        report.id = data["id"]
+    if isinstance(data.get("id"), str) and _ID_RE.match(data["id"]):
+        report.id = data["id"]  # shown beside the errors; an unchecked id could carry markup
     try:
         report.spec = validate_document(report.document)
     except InvalidSpec as error:

@@ -48,7 +48,7 @@ def print_table(out: Console, reports: list[SpecReport]) -> None:
         target = "-" if spec is None else f"{spec.design.power:g}"
         verdict = report.verdict
         table.add_row(
-            report.id or report.path,
+            Text(report.id or report.path),  # Text: a file name is never read as markup
             spec.design.test if spec else "-",
             _n(report.planned_per_group),
             _n(report.required_per_group),

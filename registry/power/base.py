@@ -58,7 +58,7 @@ class InfeasibleDesign(ValueError):
 
 def _percent_hint(value: float, name: str) -> str:
     if 1 < value <= 100:
-        return f"; {value:g} looks like a percent, did you mean {value / 100:g}?"
+        return f", which looks like a percent: did you mean {value / 100:g}?"
     return ""
 
 
@@ -71,7 +71,7 @@ def fraction_validator(name: str, *, low_closed: bool = False):
         ok = (0 <= value < 1) if low_closed else (0 < value < 1)
         if not ok:
             interval = "[0, 1)" if low_closed else "(0, 1)"
-            raise ValueError(f"{name} must be in {interval}{_percent_hint(value, name)}")
+            raise ValueError(f"{name} must be in {interval}; got {value!r}{_percent_hint(value, name)}")
         return value
 
     return check
