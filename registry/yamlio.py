@@ -145,11 +145,15 @@ class _Builder:
             self.aliased = True
         self.seen.add(id(node))
         if self.nodes > MAX_NODES:
-            self._problem(loc, node, _too_many_values(aliases=self.aliased))
+            # Point at the top-level key whose value is too large: the alias site itself is not kept.
+            top = loc[:1]
+            line, column = self.doc.key_positions.get(top) or (node.start_mark.line + 1, node.start_mark.column + 1)
+            self.problems.append(Problem(_dotted(top), _too_many_values(aliases=self.aliased), line, column))
             raise _Stop
         if id(node) in self.open:
-            self._problem(loc, node, "this alias refers to a list or mapping that contains it (a recursive "
-                          "alias); a spec is plain data, write the values out")
+            name = f"*{node.anchor} " if isinstance(node.anchor, str) else ""
+            self._problem(loc, node, f"the alias {name}is used inside the list or mapping it refers to, which "
+                          "starts here (a recursive alias); a spec is plain data, write the values out")
             return None
         if depth > MAX_DEPTH:
             self._problem(loc, node, f"nested more than {MAX_DEPTH} levels deep (counting aliases); "
@@ -180,11 +184,11 @@ class _Builder:
             if key_tag == _CORE + "merge":
                 self._problem(loc, key_node, "merge keys ('<<') are not supported; write the keys out")
                 continue
+            if key_tag not in _SCALAR_TAGS | {_CORE + "map", _CORE + "seq"}:
+                self._tag_problem(loc, key_node, key_tag)
+                continue
             if not isinstance(key_node, ScalarNode):
                 self._problem(loc, key_node, "a key must be plain text, not a list or mapping")
-                continue
-            if key_tag not in _SCALAR_TAGS:
-                self._tag_problem(loc, key_node, key_tag)
                 continue
             key = str(key_node.value)
             if _SURROGATE_RE.search(key):
@@ -430,7 +434,8 @@ def load_text(text: str, path: str) -> Document:
     except (YAMLError, ValueError, TypeError, AssertionError, AttributeError, IndexError, KeyError) as exc:
         # ruamel raises plain exceptions for a few malformed inputs (bad directives, odd tags).
         raise InvalidSpec(path, [Problem("", f"not valid YAML: {_first_line(exc)}")], lines) from None
-    roots = [r for r in roots if r is not None]
+    # A document with nothing in it ("---" alone) composes to an empty null scalar.
+    roots = [r for r in roots if r is not None and not _is_empty(r)]
     if not roots:
         raise InvalidSpec(path, [Problem("", "the file holds no YAML data (it is empty, blank or only "
                                          "comments); a spec is a mapping starting with 'id:'")], lines)
@@ -452,6 +457,10 @@ def load_text(text: str, path: str) -> Document:
                                          "'id:', 'title:' and 'design:'", root.start_mark.line + 1,
                                          root.start_mark.column + 1)], lines)
     return doc
+
+
+def _is_empty(node: Node) -> bool:
+    return isinstance(node, ScalarNode) and str(node.tag) == _CORE + "null" and node.value == ""
 
 
 def _first_line(exc: BaseException) -> str:
@@ -512,6 +521,12 @@ def _syntax_problem(exc: MarkedYAMLError, lines: list[str]) -> Problem:
     if problem.startswith("expected <block end>") and "block collection" in context:
         return Problem("", f"this line is indented differently from the list at {here}; items of one list must "
                        "start in the same column", line, column)
+    if problem == "mapping values are not allowed here" and line is not None:
+        indent, previous = _continued(lines, line)
+        if previous is not None:
+            return Problem("", f"this line is indented more than the key on line {previous}, so YAML reads it "
+                           f"as more text of that key's value; start it in the same column as the key above",
+                           line, indent + 1)
     if problem == "mapping values are not allowed here":
         return Problem("", "unexpected ':' here; text containing ': ' must be quoted (e.g. title: \"Dose: "
                        "low\"), and a nested mapping must start on a new, indented line", line, column)
@@ -536,6 +551,25 @@ def _syntax_problem(exc: MarkedYAMLError, lines: list[str]) -> Problem:
     if line is not None and 1 <= line <= len(lines) and "\t" in lines[line - 1]:
         text += "; this line contains a tab character: YAML indents with spaces only"
     return Problem("", text, line, column)
+
+
+def _continued(lines: list[str], line: int) -> tuple[int, int | None]:
+    """(indent of ``line``, number of the line above it) when ``line`` is indented deeper than a
+    preceding ``key: value`` line, which makes YAML read it as a continuation of that value."""
+    if not 1 <= line <= len(lines):
+        return 0, None
+    text = lines[line - 1]
+    indent = len(text) - len(text.lstrip(" "))
+    for number in range(line - 1, 0, -1):
+        above = lines[number - 1]
+        if not above.strip() or above.lstrip().startswith("#"):
+            continue
+        above_indent = len(above) - len(above.lstrip(" "))
+        key_value = re.match(r"^\s*(- )?[^\s:#][^:#]*:[ ]+[^\s#]", above)
+        if indent > above_indent and key_value:
+            return indent, number
+        return indent, None
+    return indent, None
 
 
 def dump(data: Any, header: str = "") -> str:
