@@ -16,7 +16,7 @@ from .config import RegistryConfig
 from .discovery import SpecFile
 from .model import ID_PATTERN, Spec
 from .power import InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
-from .problems import InvalidSpec
+from .problems import InvalidSpec, printable
 from .validation import validate_document
 from .yamlio import Document, load_file
 
@@ -76,6 +76,8 @@ class SpecReport:
     sample: SampleSize | None = None
     at_planned: PowerAtN | None = None
     problems_text: str = ""
+    #: The file's lines (printable) when it could not be loaded, so output can still show them.
+    source_lines: list[str] = field(default_factory=list)
 
     @property
     def planned_per_group(self) -> int | None:
@@ -135,6 +137,8 @@ def _invalid(report: SpecReport, error: InvalidSpec) -> None:
         report.findings.append(Finding("invalid", "error", problem.field, problem.line, problem.message,
                                        problem.column))
     report.problems_text = str(error)
+    if report.document is None:
+        report.source_lines = [printable(line) for line in error.source_lines]
 
 
 def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> SpecReport:

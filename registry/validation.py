@@ -283,8 +283,13 @@ def _problems(exc: ValidationError, model: type[BaseModel], data: Any, doc: Docu
             continue
         seen.add((field, message))
         line = column = None
-        if doc is not None:
-            line, column = doc.position(loc, key=error["type"] in ("extra_forbidden", "missing"))
+        if doc is not None and error["type"] in ("missing", "union_tag_not_found"):
+            # A missing key has no text: point at the key of the mapping that lacks it, if any.
+            parent = loc[:-1]
+            if parent:
+                line, column = doc.position(parent, key=True)
+        elif doc is not None:
+            line, column = doc.position(loc, key=error["type"] == "extra_forbidden")
         value = error.get("input", NO_VALUE) if error["type"] != "missing" else NO_VALUE
         problems.append(Problem(field, message, line, column, value))
     return problems

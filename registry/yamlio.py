@@ -452,7 +452,8 @@ def load_text(text: str, path: str) -> Document:
     if builder.problems:
         raise InvalidSpec(path, builder.problems, lines)
     if not isinstance(doc.data, dict):
-        kind = "a list" if isinstance(doc.data, list) else f"a single value ({_short(doc.data)})"
+        kind = ("a list" if isinstance(doc.data, list) else "a single null value" if doc.data is None
+                else f"a single value ({_short(doc.data)})")
         raise InvalidSpec(path, [Problem("", f"the document is {kind}; a spec is a mapping of keys such as "
                                          "'id:', 'title:' and 'design:'", root.start_mark.line + 1,
                                          root.start_mark.column + 1)], lines)
