@@ -154,7 +154,7 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
         _invalid(report, error)
         return report
     data = report.document.data
-    if isinstance(data.get("id"), str) and _ID_RE.match(data["id"]):
+    if isinstance(data.get("id"), str) and _ID_RE.fullmatch(data["id"]):
         report.id = data["id"]  # shown beside the errors; an unchecked id could carry markup
     try:
         report.spec = validate_document(report.document)
