@@ -163,7 +163,14 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
         return report
     spec = report.spec
     report.id = spec.id
-    _size(report, spec, config)
+    try:
+        _size(report, spec, config)
+    except Exception as error:  # noqa: BLE001 - one design the engine cannot handle must not stop the run
+        report.sample = report.at_planned = None
+        report.add("invalid", "error", "design",
+                   f"the sample size could not be computed for these assumptions ({type(error).__name__}: "
+                   f"{error}); check that alpha ({spec.design.alpha:g}), power ({spec.design.power:g}) and the "
+                   "effect are realistic. If they are, this is a bug in prespec: please report it", ("design",))
     _completeness(report, spec)
     stem = spec_file.path.name.rsplit(".", 1)[0]
     if stem != spec.id:

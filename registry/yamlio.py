@@ -346,11 +346,15 @@ def _decode(raw: bytes, path: str) -> str:
         line = raw.count(b"\n", 0, exc.start) + 1
         column = len(raw[start:exc.start].decode("utf-8", errors="replace")) + 1
         byte = raw[exc.start]
+        if exc.reason == "unexpected end of data":
+            raise InvalidSpec(path, [Problem("", f"the file is not valid UTF-8: it ends in the middle of a "
+                                             f"character (byte 0x{byte:02x}); it may be cut short, save it again as "
+                                             "UTF-8", line, column)]) from None
         guess = bytes([byte]).decode("cp1252", errors="replace")
-        hint = (f" (in Latin-1 or Windows-1252 it would be {guess!r})"
+        hint = (f" (if the file was saved as Latin-1 or Windows-1252, this byte is {guess!r})"
                 if guess.isprintable() and guess != "\ufffd" else "")
-        raise InvalidSpec(path, [Problem("", f"the file is not valid UTF-8: byte 0x{byte:02x}{hint} cannot be "
-                                         "read; save the file as UTF-8", line, column)]) from None
+        raise InvalidSpec(path, [Problem("", f"the file is not valid UTF-8: byte 0x{byte:02x} cannot be read"
+                                         f"{hint}; save the file as UTF-8", line, column)]) from None
 
 
 def load_bytes(raw: bytes, path: str) -> Document:

@@ -126,6 +126,12 @@ def _valid(spec_id: str = "generated", title: str = "Generated case") -> str:
     return VALID.format(id=spec_id, title=title)
 
 
+def _cut_after_half_beta(spec_id: str) -> bytes:
+    """A spec titled 'αβ' cut after the first of the two UTF-8 bytes of β (0xce 0xb2)."""
+    raw = _valid(spec_id, "\u03b1\u03b2").encode()
+    return raw[: raw.index("\u03b2".encode()) + 1]
+
+
 #: name -> (bytes, field or None, line, column, message fragment); line None: no position asserted.
 GENERATED: dict[str, tuple[bytes, str | None, int | None, int | None, str]] = {
     "alias-bomb-sequences.yaml": (_laughs(10, 10), None, None, None,
@@ -169,11 +175,13 @@ GENERATED: dict[str, tuple[bytes, str | None, int | None, int | None, str]] = {
                                "looks like UTF-16 or UTF-32 text without a byte-order mark"),
     "utf32-with-bom.yaml": (_valid("utf32-with-bom").encode("utf-32"), "", None, None, "the file is UTF-32 encoded"),
     "latin1.yaml": (_valid("latin1", "Caf\xe9 study").encode("latin-1"), "", 2, 11,
-                    "not valid UTF-8: byte 0xe9 (in Latin-1 or Windows-1252 it would be 'é')"),
+                    "not valid UTF-8: byte 0xe9 cannot be read (if the file was saved as Latin-1 or Windows-1252, this byte is 'é')"),
     "windows-1252-quotes.yaml": (_valid("windows-1252-quotes", "\u201cquoted\u201d").encode("cp1252"), "", 2, 8,
-                                 "byte 0x93 (in Latin-1 or Windows-1252 it would be '\u201c')"),
-    "truncated-utf8.yaml": (_valid("truncated-utf8", "\u03b1\u03b2").encode()[:29] + b"\n", "", 2, 9,
-                            "not valid UTF-8"),
+                                 "byte 0x93 cannot be read (if the file was saved as Latin-1 or Windows-1252, this byte is '\u201c')"),
+    "truncated-utf8.yaml": (_cut_after_half_beta("truncated-utf8") + b"\n", "", 2, 9,
+                            "not valid UTF-8: byte 0xce cannot be read"),
+    "cut-mid-character.yaml": (_cut_after_half_beta("cut-mid-character"), "", 2, 9,
+                               "it ends in the middle of a character (byte 0xce)"),
     "control-escape.yaml": (_valid("control-escape").encode().replace(b"draft", b"dr\x1b[2Jaft"), "", 3, 11,
                             "the control character U+001B"),
 }
@@ -450,3 +458,26 @@ def test_every_finding_names_its_file_in_text_output(run, tmp_path):
     for name, where in [("tab-indentation.yaml", ":8:1"), ("alpha-percent.yaml", ":8:10"), ("empty.yaml", ""),
                         ("two-documents.yaml", ":16:1")]:
         assert f"{name}{where}" in result.out
+
+
+@pytest.mark.parametrize("old, new", [
+    ("alpha: 0.05", "alpha: 1.0e-300"),
+    ("alpha: 0.05", "alpha: 1.0e-12"),
+    ("power: 0.8", "power: 0.9999999999999999"),
+    ("difference: 1.0", "difference: 1.0e+300"),
+    ("difference: 1.0", "difference: -1.0e+300"),
+    ("sd: 1.0", "sd: 1.0e-300"),
+    ("sd: 1.0", "sd: 5.0e-324"),
+    ("difference: 1.0", "difference: 5.0e-324"),
+], ids=lambda v: v.replace(" ", ""))
+def test_extreme_but_well_formed_numbers_give_a_finding_not_a_crash(run, tmp_path, old, new):
+    # The model accepts these; whatever the engine makes of them, check reports and goes on.
+    (tmp_path / "extreme.yaml").write_text(_valid("extreme").replace(old, new), encoding="utf-8")
+    shutil.copy(EXAMPLES / "fibre-butyrate.yaml", tmp_path / "fibre-butyrate.yaml")
+    result = run("check", "--json", str(tmp_path))
+    assert result.status == 1 and "Traceback" not in result.out + result.err
+    by_id = {spec["id"]: spec for spec in result.json()["specs"]}
+    extreme = by_id["extreme"]
+    assert any(f["severity"] == "error" and f["field"].startswith(("design", "sample_size"))
+               for f in extreme["findings"]), extreme
+    assert by_id["fibre-butyrate"]["verdict"] == "ok" and by_id["fibre-butyrate"]["required_per_group"]

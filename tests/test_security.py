@@ -8,8 +8,6 @@ from __future__ import annotations
 import ast
 from pathlib import Path
 
-import pytest
-
 from .conftest import ROOT
 
 SOURCES = sorted((ROOT / "registry").rglob("*.py"))
@@ -126,21 +124,6 @@ def test_processes_are_started_only_by_git_py_with_argument_lists():
             assert isinstance(first, (ast.List, ast.Tuple, ast.Name, ast.Starred, ast.BinOp, ast.Call)), (
                 f"{name}:{call.lineno}: {func} must get an argument list, not a command string")
             assert not isinstance(first, (ast.Constant, ast.JoinedStr)), f"{name}:{call.lineno}: command string"
-
-
-def test_git_command_lists_separate_paths_with_double_dash():
-    # Wherever registry/git.py spells out a git command that takes paths, '--' comes before them.
-    git = ROOT / "registry" / "git.py"
-    if not git.exists():
-        pytest.skip("registry/git.py is not part of this branch")
-    tree = ast.parse(git.read_text(encoding="utf-8"))
-    for node in ast.walk(tree):
-        if isinstance(node, ast.List) and node.elts and isinstance(node.elts[0], ast.Constant) \
-                and node.elts[0].value in ("log", "show", "diff", "ls-files", "blame", "rev-list", "cat-file"):
-            names = [e.value for e in node.elts if isinstance(e, ast.Constant)]
-            has_path = any(not isinstance(e, ast.Constant) for e in node.elts[1:])
-            if has_path and node.elts[0].value in ("log", "diff", "ls-files", "blame", "rev-list"):
-                assert "--" in names, f"registry/git.py:{node.lineno}: {names}: put '--' before paths"
 
 
 def test_scanner_catches_what_it_is_meant_to():
