@@ -215,7 +215,9 @@ def test_generated_case_gets_its_error(name, tmp_path):
     ("%YAML 1.2\n---\n" + _valid("directive", "YAML 1.2 directive"), "YAML 1.2 directive"),
     ("# comment\n" + _valid("comments", "Comments # not one").replace("Comments # not one", "'Comments # not one'  # one"),
      "Comments # not one"),
-], ids=["bom", "crlf", "cr", "greek", "chinese", "arabic", "emoji", "markers", "directive", "comments"])
+    (_valid("hex", "Hexadecimal n").replace("per_group: 17", "per_group: 0x11"), "Hexadecimal n"),
+    (_valid("octal", "Octal n").replace("per_group: 17", "per_group: 0o21"), "Octal n"),
+], ids=["bom", "crlf", "cr", "greek", "chinese", "arabic", "emoji", "markers", "directive", "comments", "hex", "octal"])
 def test_valid_but_unusual_input_is_accepted(text, title, tmp_path):
     spec_id = text.split("id: ", 1)[1].split()[0]
     path = tmp_path / f"{spec_id}.yaml"
@@ -481,3 +483,16 @@ def test_extreme_but_well_formed_numbers_give_a_finding_not_a_crash(run, tmp_pat
     assert any(f["severity"] == "error" and f["field"].startswith(("design", "sample_size"))
                for f in extreme["findings"]), extreme
     assert by_id["fibre-butyrate"]["verdict"] == "ok" and by_id["fibre-butyrate"]["required_per_group"]
+
+
+def test_docs_state_the_caps_the_code_uses():
+    # docs/errors.md documents the caps; it must not drift from the constants.
+    from registry.model import Spec
+    from registry.power.base import MAX_N
+    from registry.yamlio import MAX_NUMBER_CHARS
+
+    docs = (ROOT / "docs" / "errors.md").read_text(encoding="utf-8")
+    id_max = next(m.max_length for m in Spec.model_fields["id"].metadata if hasattr(m, "max_length"))
+    for value in (f"{MAX_FILE_BYTES:,} bytes", f"| {MAX_NODES:,} |", f"{MAX_DEPTH} levels", f"{MAX_NUMBER_CHARS} characters",
+                  f"{MAX_N:,} per group", f"{id_max} characters"):
+        assert value in docs, value

@@ -185,3 +185,20 @@ def test_mangled_specs_only_ever_give_findings(tmp_path, raw):
     print_table(out, [report])
     print_findings(out, [report])
     json.loads(to_json([report]))
+
+
+_YAML_PIECES = st.sampled_from(list("abc:-[]{},&*!|>'\"#%@`?\t\n\r 019.~\\<=") + [
+    "\u2028", "\x85", "\ufeff", "é", "---", "...", "!!python/", "%YAML 1.2", "%TAG ! x", "0x", "0o", ".inf", "<<"])
+
+
+@SETTINGS
+@given(st.lists(_YAML_PIECES, max_size=60).map("".join))
+def test_arbitrary_yaml_like_text_only_raises_invalid_spec(text):
+    # Whatever the text, loading and validating either succeed or raise InvalidSpec with a message.
+    from registry.problems import InvalidSpec
+
+    try:
+        validate_document(load_text(text, "fuzz.yaml"))
+    except InvalidSpec as error:
+        assert error.problems and all(p.message for p in error.problems)
+        str(error)
