@@ -17,7 +17,7 @@ from typing import Any
 
 from .checks import Finding, SpecReport, check_files
 from .config import RegistryConfig
-from .discovery import SpecFile, UsageError, discover
+from .discovery import SpecFile, UsageError, discover, display_name
 from .git import Commit, GitProblem, Repository, TagInfo, find_repository
 from .history import Event, Snapshot, SnapshotStore, SpecHistory, analyze, dotted_loc, spec_events, \
     uncommitted_findings
@@ -227,7 +227,7 @@ def _deleted_reports(registry: RegistryHistory, seen: set[str], scopes: Sequence
         last_path = where[0] if where else history.last_path
         if last_path is None or not _in_scope(registry.repo.root / last_path, scopes):
             continue
-        report = SpecReport(path=_display(registry.repo.root / last_path), id=spec_id)
+        report = SpecReport(path=display_name(registry.repo.root / last_path), id=spec_id)
         if where:
             message = (f"spec {spec_id!r} is in HEAD ({last_path}) but not in the working tree: it was deleted "
                        "and the deletion is not committed")
@@ -241,13 +241,6 @@ def _deleted_reports(registry: RegistryHistory, seen: set[str], scopes: Sequence
         report.history = history
         out.append(report)
     return out
-
-
-def _display(path: Path) -> str:
-    try:
-        return os.path.relpath(path)
-    except ValueError:
-        return str(path)
 
 
 def find_spec(target: str, paths: Sequence[str] = (".",),

@@ -7,6 +7,7 @@ the results and ``report.py`` formats them.
 from __future__ import annotations
 
 import math
+import re
 from collections import defaultdict
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -14,15 +15,17 @@ from typing import Any, Literal
 
 from .config import RegistryConfig
 from .discovery import SpecFile
-from .model import Spec
+from .model import ID_PATTERN, Spec
 from .pilot import InvalidPilot, PilotMissing, read_pilot
 from .power import InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
 from .power.simulate import InvalidSimulation, SimulatedPower, simulate_plan
-from .problems import InvalidSpec
+from .problems import InvalidSpec, printable
 from .validation import validate_document
 from .yamlio import Document, load_file
 
 __all__ = ["Finding", "SpecReport", "check_file", "check_files", "Severity", "CAUTION", "RECOMMENDED_FIELDS"]
+
+_ID_RE = re.compile(ID_PATTERN)
 
 Severity = Literal["error", "warning", "info"]
 
@@ -78,6 +81,8 @@ class SpecReport:
     simulated: SimulatedPower | None = None
     problems_text: str = ""
     history: Any = None  # registry.history.SpecHistory when the file is in a git repository
+    #: The file's lines (printable) when it could not be loaded, so output can still show them.
+    source_lines: list[str] = field(default_factory=list)
 
     @property
     def planned_per_group(self) -> int | None:
@@ -141,15 +146,16 @@ def _invalid(report: SpecReport, error: InvalidSpec) -> None:
         report.findings.append(Finding("invalid", "error", problem.field, problem.line, problem.message,
                                        problem.column))
     report.problems_text = str(error)
+    if report.document is None:
+        report.source_lines = [printable(line) for line in error.source_lines]
 
 
 def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> SpecReport:
     """Load, validate and size one spec file. Never raises for a bad file: it becomes findings."""
     config = config or RegistryConfig()
     report = SpecReport(path=spec_file.display)
-    if spec_file.outside:
-        report.add("invalid", "error", "", "is a symbolic link to a file outside the registry; "
-                   "specs must live inside the registry folder")
+    if spec_file.refusal:
+        report.add("invalid", "error", "", spec_file.refusal)
         return report
     try:
         report.document = load_file(spec_file.path, spec_file.display)
@@ -157,8 +163,8 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
         _invalid(report, error)
         return report
     data = report.document.data
-    if isinstance(data.get("id"), str):
-        report.id = data["id"]
+    if isinstance(data.get("id"), str) and _ID_RE.fullmatch(data["id"]):
+        report.id = data["id"]  # shown beside the errors; an unchecked id could carry markup
     try:
         report.spec = validate_document(report.document)
     except InvalidSpec as error:
@@ -166,7 +172,14 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
         return report
     spec = report.spec
     report.id = spec.id
-    _size(report, spec, config)
+    try:
+        _size(report, spec, config)
+    except Exception as error:  # noqa: BLE001 - one design the engine cannot handle must not stop the run
+        report.sample = report.at_planned = None
+        report.add("invalid", "error", "design",
+                   f"the sample size could not be computed for these assumptions ({type(error).__name__}: "
+                   f"{error}); check that alpha ({spec.design.alpha:g}), power ({spec.design.power:g}) and the "
+                   "effect are realistic. If they are, this is a bug in prespec: please report it", ("design",))
     _simulation(report, spec)
     _pilot(report, spec, spec_file)
     _completeness(report, spec)

@@ -20,6 +20,10 @@ COMMANDS: tuple[ModuleType, ...] = (check, size, new, pilot, history, freeze, ve
 
 class _Parser(argparse.ArgumentParser):
     def error(self, message: str) -> None:  # type: ignore[override]
+        unknown = message.partition("unrecognized arguments: ")[2].split()
+        if any(arg.startswith("-") and arg.endswith((".yaml", ".yml")) for arg in unknown):
+            message += ("; a file name starting with '-' is read as an option: put '--' before the file names "
+                        "(prespec check -- -name.yaml) or write ./-name.yaml")
         raise UsageError(f"{self.prog}: {message}")
 
 

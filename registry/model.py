@@ -163,7 +163,7 @@ class Spec(_Strict):
     @field_validator("id")
     @classmethod
     def _id_shape(cls, value: str) -> str:
-        if not _ID_RE.match(value):
+        if not _ID_RE.fullmatch(value):
             raise ValueError(
                 "id must be lowercase letters, digits and single hyphens, starting and ending with a letter "
                 f"or digit (e.g. 'fibre-butyrate'); got {value!r}"

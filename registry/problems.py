@@ -10,7 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-__all__ = ["Problem", "InvalidSpec", "NO_VALUE", "format_problem"]
+__all__ = ["Problem", "InvalidSpec", "NO_VALUE", "format_problem", "printable"]
 
 
 class _NoValue:
@@ -40,6 +40,14 @@ class Problem:
         return f"{path}:{self.line}:{self.column}"
 
 
+def printable(text: str, limit: int = 160) -> str:
+    """A source line safe to print: tabs as spaces, control characters escaped, long lines cut."""
+    text = text.rstrip("\r\n").replace("\t", " ")
+    if not text.isprintable():
+        text = "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
+    return text if len(text) <= limit else text[: limit - 3] + "..."
+
+
 def format_problem(problem: Problem, path: str, source_lines: list[str] | None = None) -> str:
     """``file:line:col: field: message`` followed by the source line and a caret."""
     head = problem.location(path) + ": "
@@ -47,9 +55,7 @@ def format_problem(problem: Problem, path: str, source_lines: list[str] | None =
         head += problem.field + ": "
     text = head + problem.message
     if source_lines and problem.line is not None and 1 <= problem.line <= len(source_lines):
-        shown = source_lines[problem.line - 1].rstrip("\r\n").replace("\t", " ")
-        if len(shown) > 160:
-            shown = shown[:157] + "..."
+        shown = printable(source_lines[problem.line - 1])
         gutter = f"{problem.line:>5} | "
         text += f"\n{gutter}{shown}"
         if problem.column is not None and problem.column - 1 <= len(shown):

@@ -13,6 +13,7 @@ from rich.table import Table
 from rich.text import Text
 
 from .checks import CAUTION, SpecReport
+from .problems import printable
 
 __all__ = ["console", "print_table", "print_findings", "to_json", "VERDICT_STYLES"]
 
@@ -48,7 +49,7 @@ def print_table(out: Console, reports: list[SpecReport]) -> None:
         target = "-" if spec is None else f"{spec.design.power:g}"
         verdict = report.verdict
         table.add_row(
-            report.id or report.path,
+            Text(report.id or report.path),  # Text: a file name is never read as markup
             spec.design.test if spec else "-",
             _n(report.planned_per_group),
             _n(report.required_per_group),
@@ -66,7 +67,7 @@ def print_findings(out: Console, reports: list[SpecReport], *, show_info: bool =
             continue
         out.print()
         out.print(Text(f"{report.path}" + (f"  ({report.id})" if report.id else ""), style="bold"))
-        lines = report.document.source_lines if report.document else []
+        lines = report.document.source_lines if report.document else report.source_lines
         for finding in shown:
             where = f"{report.path}:{finding.line}" if finding.line else report.path
             if finding.line and finding.column:
@@ -79,7 +80,7 @@ def print_findings(out: Console, reports: list[SpecReport], *, show_info: bool =
             out.print(head)
             out.print(Padding(Text(finding.message), (0, 0, 0, 4), expand=False))
             if finding.kind == "invalid" and finding.line and 1 <= finding.line <= len(lines):
-                source = lines[finding.line - 1].rstrip("\r\n").replace("\t", " ")[:160]
+                source = printable(lines[finding.line - 1])
                 out.print(Text(f"    {finding.line:>4} | {source}", style="dim"))
                 if finding.column and finding.column - 1 <= len(source):
                     out.print(Text("         | " + " " * (finding.column - 1) + "^", style="dim"))

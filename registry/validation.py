@@ -8,6 +8,7 @@ and, for an unknown key, suggests the nearest allowed one. Positions come from t
 from __future__ import annotations
 
 import difflib
+import math
 import re
 import types
 import typing
@@ -22,7 +23,19 @@ from .yamlio import Document
 
 __all__ = ["validate_document", "messages_for", "allowed_keys"]
 
-_UNIT_RE = re.compile(r"^\s*[-+]?(\d+\.?\d*|\.\d+)(e[-+]?\d+)?\s*(%|[^\d\s].*)$", re.IGNORECASE)
+_UNIT_RE = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:e[-+]?\d+)?)\s*(%|[^\W\d_].*|[°µ/].*)$", re.IGNORECASE)
+#: Fields holding a fraction, where "5%" means 0.05.
+_FRACTION_FIELDS = ("alpha", "power", "attrition", "oversize_margin")
+_YAML11_BOOLS = ("yes", "no", "on", "off", "y", "n")
+#: What a field of each pydantic error kind expects, for "has no value" messages.
+_EXPECTED = {
+    "float_type": "a number", "float_parsing": "a number", "decimal_type": "a number", "finite_number": "a number",
+    "int_type": "a whole number", "int_parsing": "a whole number", "int_from_float": "a whole number",
+    "string_type": "text", "str_type": "text", "bool_type": "true or false", "bool_parsing": "true or false",
+    "list_type": "a list", "tuple_type": "a list", "date_type": "a date (YYYY-MM-DD)",
+    "date_parsing": "a date (YYYY-MM-DD)", "model_type": "a mapping", "model_attributes_type": "a mapping",
+    "dict_type": "a mapping", "literal_error": "one of the listed values",
+}
 
 
 def _strip_tags(loc: tuple[Any, ...], model: type[BaseModel]) -> tuple[Any, ...]:
@@ -120,16 +133,51 @@ def _name(loc: tuple[Any, ...]) -> str:
     return "value"
 
 
-def _number_hint(value: Any) -> str:
-    if isinstance(value, str):
-        match = _UNIT_RE.match(value)
-        if match:
-            number, unit = match.group(1), match.group(3).strip()
-            if unit == "%":
-                return f"; write the number without '%' ({float(number) / 100:g} for {value.strip()})"
-            return (f"; write the number alone ({number}) without the unit {unit!r}: "
-                    "units belong in outcomes.primary.unit")
-    return ""
+def _number_hint(value: Any, name: str) -> str:
+    """Why a text value is not a number, when it nearly is one: quotes, a unit, a percent sign."""
+    if not isinstance(value, str):
+        return ""
+    text = value.strip()
+    try:
+        float(text)
+        return f" (a number in quotes is text: write {text} without the quotes)"
+    except ValueError:
+        pass
+    match = _UNIT_RE.match(text)
+    if not match:
+        return ""
+    number, unit = match.group(1), match.group(2).strip()
+    if unit == "%" and name in _FRACTION_FIELDS:
+        return f"; write it as a fraction without '%' ({float(number) / 100:g} for {text})"
+    if unit == "%":
+        return (f"; write the number alone ({number}); if the outcome is measured in percent, put '%' in "
+                "outcomes.primary.unit")
+    return (f"; write the number alone ({number}) without the unit {unit!r}: the unit belongs in "
+            "outcomes.primary.unit")
+
+
+def _data_at(data: Any, loc: tuple[Any, ...]) -> Any:
+    for part in loc:
+        if isinstance(data, dict) and part in data:
+            data = data[part]
+        elif isinstance(data, list) and isinstance(part, int) and 0 <= part < len(data):
+            data = data[part]
+        else:
+            return None
+    return data
+
+
+def _refine(loc: tuple[Any, ...], message: str, kind: str, data: Any) -> tuple[Any, ...]:
+    """Point a problem at the exact key: ``design.test`` for a family, ``design.power`` for a rule
+    about power that a model-level validator reports on the whole ``design`` mapping."""
+    if kind in ("union_tag_invalid", "union_tag_not_found"):
+        return loc + ("test",)
+    if kind in ("value_error", "assertion_error"):
+        here = _data_at(data, loc)
+        first = re.match(r"(\w+)\b", message)
+        if isinstance(here, dict) and first and first.group(1) in here:
+            return loc + (first.group(1),)
+    return loc
 
 
 def _message(error: dict[str, Any], loc: tuple[Any, ...], model: type[BaseModel], data: Any) -> str:
@@ -138,33 +186,42 @@ def _message(error: dict[str, Any], loc: tuple[Any, ...], model: type[BaseModel]
     value = error.get("input")
     ctx = error.get("ctx") or {}
     if kind == "missing":
-        return f"{name} is required here"
+        return f"{name} is required but missing; add '{name}: ...'"
     if kind == "extra_forbidden":
         allowed = allowed_keys(model, loc[:-1], data)
         close = difflib.get_close_matches(str(loc[-1]), allowed, n=1, cutoff=0.6)
-        hint = f"; did you mean {close[0]!r}?" if close else ""
+        hint = f"; did you mean {close[0]!r}?" if close else "."
         listing = f" Allowed here: {', '.join(allowed)}." if allowed else ""
-        return f"unknown key {loc[-1]!r}{hint}{listing}"
+        return f"unknown key {_short(loc[-1])}{hint}{listing}"
     if kind == "union_tag_invalid":
-        tag = ctx.get("tag", value)
-        close = difflib.get_close_matches(str(tag), family_names(), n=1, cutoff=0.5)
-        hint = f"; did you mean {close[0]!r}?" if close else ""
-        return f"{tag!r} is not a known design family{hint} Known families: {', '.join(family_names())}"
+        tag = _data_at(data, loc + ("test",))
+        known = ", ".join(family_names())
+        if not isinstance(tag, str):
+            return f"test must name a design family as text; got {_short(tag)}. Known families: {known}"
+        close = difflib.get_close_matches(tag, family_names(), n=1, cutoff=0.6)
+        hint = f"; did you mean {close[0]!r}?" if close else "."
+        return f"{_short(tag)} is not a known design family{hint} Known families: {known}"
     if kind == "union_tag_not_found":
-        return f"test is required: name the design family, one of {', '.join(family_names())}"
+        return f"test is required but missing: name the design family, one of {', '.join(family_names())}"
     if kind in ("value_error", "assertion_error"):
         message = str(ctx.get("error", error["msg"]))
         message = re.sub(r"^(Value|Assertion) error, ", "", message)
         if message.startswith("must ") or message.startswith("is "):
             return f"{name} {message}"
         return message
+    if value is None and kind in _EXPECTED:
+        return f"{name} has no value; write {_EXPECTED[kind]} after '{name}:'"
     if kind in ("float_type", "float_parsing", "int_parsing", "decimal_type"):
         what = "a whole number" if kind == "int_parsing" else "a number"
-        return f"{name} must be {what}; got {value!r}{_number_hint(value)}"
+        return f"{name} must be {what}; got {_short(value)}{_number_hint(value, name)}"
     if kind in ("int_type", "int_from_float"):
-        if isinstance(value, float):
+        if isinstance(value, float) and not math.isfinite(value):
             return f"{name} must be a whole number; got {value!r}"
-        return f"{name} must be a whole number; got {value!r}{_number_hint(value)}"
+        if isinstance(value, float) and value.is_integer():
+            return f"{name} must be a whole number; got {value!r} (write {int(value)} without the decimal point)"
+        if isinstance(value, float):
+            return f"{name} must be a whole number; got {value!r}, which has a fractional part"
+        return f"{name} must be a whole number; got {_short(value)}{_number_hint(value, name)}"
     if kind == "finite_number":
         return f"{name} must be a finite number; got {value!r}"
     if kind in ("greater_than", "greater_than_equal", "less_than", "less_than_equal"):
@@ -172,21 +229,23 @@ def _message(error: dict[str, Any], loc: tuple[Any, ...], model: type[BaseModel]
                  "less_than": "less than", "less_than_equal": "at most"}[kind]
         bound = next(iter(ctx.values()))
         bound_text = f"{bound:,}" if isinstance(bound, int) else f"{bound:g}"
-        return f"{name} must be {words} {bound_text}; got {value!r}"
+        return f"{name} must be {words} {bound_text}; got {_short(value)}"
     if kind == "literal_error":
         expected = ctx.get("expected", "")
         options = re.findall(r"'([^']*)'", expected)
         close = difflib.get_close_matches(str(value), options, n=1, cutoff=0.5)
         hint = f"; did you mean {close[0]!r}?" if close else ""
-        return f"{name} must be one of {expected}; got {value!r}{hint}"
+        return f"{name} must be one of {expected}; got {_short(value)}{hint}"
     if kind in ("string_type", "str_type"):
-        return f"{name} must be text; got {value!r} (quote it if it is meant as text)"
+        return f"{name} must be text; got {_short(value)} (put it in quotes if it is meant as text)"
     if kind == "string_too_short":
         return f"{name} must not be empty"
     if kind == "string_too_long":
         return f"{name} is {len(value):,} characters long; at most {ctx.get('max_length'):,} are allowed"
     if kind in ("bool_type", "bool_parsing"):
-        return f"{name} must be true or false; got {value!r}"
+        hint = (" (YAML 1.2 reads yes/no/on/off as text)"
+                if isinstance(value, str) and value.lower() in _YAML11_BOOLS else "")
+        return f"{name} must be true or false; got {_short(value)}{hint}"
     if kind in ("list_type", "tuple_type"):
         return f"{name} must be a list; got {_short(value)}"
     if kind == "too_short":
@@ -198,13 +257,18 @@ def _message(error: dict[str, Any], loc: tuple[Any, ...], model: type[BaseModel]
         listing = f" with keys {', '.join(keys)}" if keys else ""
         return f"{name} must be a mapping{listing}; got {_short(value)}"
     if kind in ("date_type", "date_parsing", "date_from_datetime_parsing", "date_from_datetime_inexact"):
-        return f"{name} must be a date written YYYY-MM-DD; got {value!r}"
+        return f"{name} must be a date written YYYY-MM-DD; got {_short(value)}"
     return f"{name}: {error['msg']}; got {_short(value)}"
 
 
 def _short(value: Any) -> str:
     text = repr(value)
-    return text if len(text) <= 80 else text[:77] + "..."
+    return text if len(text) <= 80 else text[:76] + "...'"
+
+
+def _shorten_quotes(message: str) -> str:
+    """Cut long quoted values inside messages written by model validators."""
+    return re.sub(r"'([^'\n]{72})[^'\n]{8,}'", r"'\1...'", message)
 
 
 def _problems(exc: ValidationError, model: type[BaseModel], data: Any, doc: Document | None) -> list[Problem]:
@@ -212,14 +276,20 @@ def _problems(exc: ValidationError, model: type[BaseModel], data: Any, doc: Docu
     seen: set[tuple[str, str]] = set()
     for error in exc.errors(include_url=False):
         loc = _strip_tags(tuple(error["loc"]), model)
-        message = _message(error, loc, model, data)
+        message = _shorten_quotes(_message(error, loc, model, data))
+        loc = _refine(loc, message, error["type"], data)
         field = _dotted(loc)
         if (field, message) in seen:
             continue
         seen.add((field, message))
         line = column = None
-        if doc is not None:
-            line, column = doc.position(loc, key=error["type"] in ("extra_forbidden", "missing"))
+        if doc is not None and error["type"] in ("missing", "union_tag_not_found"):
+            # A missing key has no text: point at the key of the mapping that lacks it, if any.
+            parent = loc[:-1]
+            if parent:
+                line, column = doc.position(parent, key=True)
+        elif doc is not None:
+            line, column = doc.position(loc, key=error["type"] == "extra_forbidden")
         value = error.get("input", NO_VALUE) if error["type"] != "missing" else NO_VALUE
         problems.append(Problem(field, message, line, column, value))
     return problems

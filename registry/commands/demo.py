@@ -9,12 +9,11 @@ from __future__ import annotations
 
 import argparse
 import re
-import shutil
 import tempfile
 from pathlib import Path
 
 from ..discovery import UsageError
-from ..fsutil import write_atomic
+from ..fsutil import move_within, write_atomic
 from ..git import GitProblem, init_repository
 from ..registration import format_message, tag_name
 from .check import check
@@ -66,12 +65,11 @@ def build_demo(target: Path) -> Path:
     registry = target / "registry"
     registry.mkdir()
     for source in sorted(EXAMPLES.glob("*.yaml")):
-        shutil.copyfile(source, registry / source.name)
+        write_atomic(registry / source.name, source.read_text(encoding="utf-8"))
     for spec_id, start in _STARTS.items():
         _edit(registry / f"{spec_id}.yaml", r"^  start: \d{4}-\d{2}-\d{2}$", f"  start: {start}")
     _edit(registry / "fibre-butyrate.yaml", r"^  end: \d{4}-\d{2}-\d{2}$", "  end: 2024-06-28")
-    (target / "README.md").write_text("Demonstration design registry built by `prespec demo` (invented data).\n",
-                                      encoding="utf-8")
+    write_atomic(target / "README.md", "Demonstration design registry built by `prespec demo` (invented data).\n")
     first = repo.commit_all("Register the lab's planned experiments", author=_LEAD,
                             date="2024-01-15T10:00:00+01:00")
 
@@ -88,7 +86,7 @@ def build_demo(target: Path) -> Path:
 
     # Before its start the psychology spec moves to its own folder (history follows the id).
     (registry / "psychology").mkdir()
-    (registry / "caffeine-reaction-time.yaml").rename(registry / "psychology" / "caffeine-reaction-time.yaml")
+    move_within(registry, "caffeine-reaction-time.yaml", "psychology/caffeine-reaction-time.yaml")
     repo.commit_all("Keep the psychology specs in their own folder", author=_PSYCH,
                     date="2024-02-26T14:05:00+01:00")
 

@@ -9,7 +9,7 @@ from datetime import date, timedelta
 from pathlib import Path
 
 from ..discovery import UsageError
-from ..fsutil import WriteRefused, write_atomic
+from ..fsutil import WriteRefused, confined, write_atomic
 from ..model import ID_PATTERN, SCHEMA_ID
 from ..power import design_from_params, family_names, get_family, solve_sample_size
 from ..power.catalog import UnknownFamily
@@ -97,7 +97,7 @@ amendments: []
 
 
 def new(spec_id: str, *, folder: str = ".", test: str = "two-sample-t", title: str | None = None) -> int:
-    if not re.match(ID_PATTERN, spec_id) or len(spec_id) > 64:
+    if not re.fullmatch(ID_PATTERN, spec_id) or len(spec_id) > 64:
         raise UsageError(f"id must be lowercase letters, digits and single hyphens (at most 64); got {spec_id!r}")
     try:
         get_family(test)
@@ -109,7 +109,8 @@ def new(spec_id: str, *, folder: str = ".", test: str = "two-sample-t", title: s
     target = target_folder / f"{spec_id}.yaml"
     schema_ref = _schema_reference(target_folder) if target_folder.exists() else SCHEMA_ID
     try:
-        write_atomic(target, template(spec_id, test, title, schema_ref), overwrite=False)
+        write_atomic(confined(target_folder, target.name), template(spec_id, test, title, schema_ref),
+                     overwrite=False)
     except WriteRefused as error:
         raise UsageError(str(error)) from None
     print(f"wrote {target}: fill in the assumptions, then run 'prespec check {target}'")

@@ -12,7 +12,7 @@ import re
 
 from pydantic import BaseModel, ConfigDict, field_validator
 
-from .fields import free, locked
+from .fields import free, locked, out_of_range
 
 __all__ = ["SimulationPlan", "PilotSource", "DEFAULT_SEED", "DEFAULT_REPS", "MAX_REPS"]
 
@@ -93,6 +93,5 @@ class PilotSource(BaseModel):
     @classmethod
     def _level(cls, value: float) -> float:
         if not (math.isfinite(value) and 0.5 <= value < 1):
-            hint = f"; {value:g} looks like a percent, did you mean {value / 100:g}?" if 1 < value <= 100 else ""
-            raise ValueError(f"confidence must be in [0.5, 1){hint}; got {value!r}")
+            raise ValueError(out_of_range("confidence", "[0.5, 1)", value))
         return value

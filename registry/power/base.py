@@ -16,7 +16,7 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, field_validator, model_validator
 
 from .assumptions import PilotSource, SimulationPlan
-from .fields import free, locked
+from .fields import free, locked, out_of_range
 
 __all__ = [
     "Alternative",
@@ -47,12 +47,6 @@ class InfeasibleDesign(ValueError):
         self.message = message
 
 
-def _percent_hint(value: float, name: str) -> str:
-    if 1 < value <= 100:
-        return f"; {value:g} looks like a percent, did you mean {value / 100:g}?"
-    return ""
-
-
 def fraction_validator(name: str, *, low_closed: bool = False):
     """Validator for a probability-like field in (0, 1) (or [0, 1) with ``low_closed``)."""
 
@@ -62,7 +56,7 @@ def fraction_validator(name: str, *, low_closed: bool = False):
         ok = (0 <= value < 1) if low_closed else (0 < value < 1)
         if not ok:
             interval = "[0, 1)" if low_closed else "(0, 1)"
-            raise ValueError(f"{name} must be in {interval}{_percent_hint(value, name)}")
+            raise ValueError(out_of_range(name, interval, value))
         return value
 
     return check

@@ -9,6 +9,7 @@ from pydantic import field_validator, model_validator
 from scipy import optimize, stats
 
 from .base import DesignBase, EffectBase, Family, locked
+from .fields import out_of_range
 
 __all__ = ["LogRank", "HazardRatio", "event_probabilities", "log_rank_z"]
 
@@ -48,8 +49,7 @@ class HazardRatio(EffectBase):
     @classmethod
     def _probability(cls, value: float | None) -> float | None:
         if value is not None and not 0 < value <= 1:
-            hint = f"; {value:g} looks like a percent, did you mean {value / 100:g}?" if 1 < value <= 100 else ""
-            raise ValueError(f"event_probability must be in (0, 1]{hint}")
+            raise ValueError(out_of_range("event_probability", "(0, 1]", value))
         return value
 
     @model_validator(mode="after")

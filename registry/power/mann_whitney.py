@@ -9,6 +9,7 @@ from pydantic import field_validator
 from scipy import special, stats
 
 from .base import DesignBase, Family, locked
+from .fields import out_of_range
 from .rank_efficiency import RankShift, standardized_sample, superiority_shift, t_equivalent_n
 from .two_sample_t import TwoSampleT
 
@@ -33,8 +34,7 @@ class MannWhitneyEffect(RankShift):
         if value is None:
             return value
         if not 0 < value < 1:
-            hint = f"; {value:g} looks like a percent, did you mean {value / 100:g}?" if 1 < value <= 100 else ""
-            raise ValueError(f"p_superiority must be in (0, 1){hint}")
+            raise ValueError(out_of_range("p_superiority", "(0, 1)", value))
         if value == 0.5:
             raise ValueError("p_superiority must not be 0.5: that is no difference between the groups")
         return value
