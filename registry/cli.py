@@ -9,13 +9,13 @@ import traceback
 from types import ModuleType
 
 from . import __version__
-from .commands import check, new, schema
+from .commands import check, new, render, schema
 from .discovery import UsageError
 
 __all__ = ["main", "COMMANDS"]
 
 #: Each command module has ``HELP``, ``add_arguments(parser)`` and ``run(args) -> int``.
-COMMANDS: tuple[ModuleType, ...] = (check, schema, new)
+COMMANDS: tuple[ModuleType, ...] = (check, schema, new, render)
 
 
 class _Parser(argparse.ArgumentParser):

@@ -22,6 +22,16 @@ def confined(folder: Path, name: str) -> Path:
     return target
 
 
+def _mode_for(path: Path) -> int:
+    """The existing file's permissions, else 0666 less the umask."""
+    try:
+        return path.stat().st_mode & 0o7777
+    except OSError:
+        umask = os.umask(0)
+        os.umask(umask)
+        return 0o666 & ~umask
+
+
 def write_atomic(path: Path, text: str, *, overwrite: bool = True) -> Path:
     """Write ``text`` to ``path`` through a temporary file and a rename, so readers never see half a file."""
     path = Path(path)
@@ -31,6 +41,7 @@ def write_atomic(path: Path, text: str, *, overwrite: bool = True) -> Path:
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
         with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
+            os.fchmod(handle.fileno(), _mode_for(path))  # mkstemp makes 0600; use a normal write's mode
             handle.write(text)
             handle.flush()
             os.fsync(handle.fileno())
