@@ -315,18 +315,27 @@ def _size_table(report: SpecReport) -> str:
     planned_sizes = family.group_sizes(design, planned)
     kept_total = sum(family.group_sizes(design, kept)) if kept >= 1 else 0
     power = "-" if report.at_planned is None else f"{report.at_planned.power:.3f}"
-    rows = [
-        ("Required", _num(sample.n_per_group), _num(sample.n_total), _num(sample.enrolment_per_group),
-         _num(sample.enrolment_total), f"{sample.achieved_power:.3f}"),
-        ("Planned", _num(kept), _num(kept_total), _num(planned), _num(sum(planned_sizes)), power),
-    ]
-    head = [" ", f"Analysable ({md.inline(family.unit)})", "Analysable (total)", f"Enrolled ({md.inline(family.unit)})",
-            "Enrolled (total)", "Power"]
-    note = (f"Target power {_num(design.power)}; attrition {design.attrition:.0%}, so enrolment = "
-            "analysable / (1 - attrition), rounded up.")
+    unit = md.inline(family.unit)
+    if family.groups > 1:
+        head = [" ", f"Analysable ({unit})", "Analysable (total)", f"Enrolled ({unit})", "Enrolled (total)", "Power"]
+        rows = [
+            ("Required", _num(sample.n_per_group), _num(sample.n_total), _num(sample.enrolment_per_group),
+             _num(sample.enrolment_total), f"{sample.achieved_power:.3f}"),
+            ("Planned", _num(kept), _num(kept_total), _num(planned), _num(sum(planned_sizes)), power),
+        ]
+    else:
+        head = [" ", f"Analysable ({unit})", f"Enrolled ({unit})", "Power"]
+        rows = [("Required", _num(sample.n_per_group), _num(sample.enrolment_per_group),
+                 f"{sample.achieved_power:.3f}"),
+                ("Planned", _num(kept), _num(planned), power)]
+    if design.attrition:
+        note = (f"Target power {_num(design.power)}; attrition {design.attrition:.0%}, so enrolment = "
+                "analysable / (1 - attrition), rounded up.")
+    else:
+        note = f"Target power {_num(design.power)}; no attrition is assumed, so enrolment equals the analysable n."
     if family.groups == 2 and design.allocation_ratio != 1:
         note += f" Group 2 gets {_num(design.allocation_ratio)} times the units of group 1, rounded up."
-    return md.table(head, rows, ["l", "r", "r", "r", "r", "r"]) + "\n\n" + note
+    return md.table(head, rows, ["l"] + ["r"] * (len(head) - 1)) + "\n\n" + note
 
 
 def _mde(report: SpecReport) -> str:
@@ -535,8 +544,8 @@ def index_markdown(rows: list[IndexRow], rendered_at: str, tool_version: str) ->
             continue
         power = "-" if report.achieved_power is None else f"{report.achieved_power:.3f}"
         table_rows.append((
-            f"[{spec.id}]({row.page})",
-            md.cell(spec.title),
+            f"[{md.cell(spec.title)}]({row.page})",
+            md.code(spec.id),
             spec.status,
             _num(spec.sample_size.per_group),
             _num(report.required_per_group),
@@ -545,7 +554,7 @@ def index_markdown(rows: list[IndexRow], rendered_at: str, tool_version: str) ->
             drift_verdict(report),
         ))
     count = f"{len(table_rows)} summar{'y' if len(table_rows) == 1 else 'ies'}"
-    table = (md.table(["Spec", "Title", "Status", "Planned n", "Required n", "Power at planned n", "Check verdict",
+    table = (md.table(["Spec", "Id", "Status", "Planned n", "Required n", "Power at planned n", "Check verdict",
                        "Drift verdict"], table_rows, ["l", "l", "l", "r", "r", "r", "l", "l"])
              if table_rows else "No valid specs found.")
     table += "\n\nPlanned and required n are enrolments, per group or per unit as the design family counts them."

@@ -56,9 +56,12 @@ def insert_figure(body: str, src: str, alt: str, svg: str, caption: str) -> str:
     return body.replace(reference, figure)
 
 
-def page(*, title: str, body: str, rendered_at: str, tool_version: str, caution: str, nav: str = "") -> str:
-    """A complete HTML document; ``title`` and ``caution`` are plain text, ``body`` and ``nav`` are HTML."""
+def page(*, title: str, body: str, rendered_at: str, tool_version: str, caution: str, nav: str = "",
+         wide: bool = False) -> str:
+    """A complete HTML document; ``title`` and ``caution`` are plain text, ``body`` and ``nav`` are HTML.
+    ``wide`` gives a table-heavy page (the index) a wider column."""
     return _PAGE.substitute(
+        layout="wide" if wide else "reading",
         title=html.escape(title),
         css=CSS,
         body=body,
