@@ -330,6 +330,27 @@ def test_foreign_file_is_never_overwritten(run, tmp_path, epoch):
     assert sorted(p.name for p in out.iterdir()) == ["fibre-butyrate.html"]  # nothing else written
 
 
+def test_foreign_file_stops_the_whole_run_before_any_write(run, tmp_path, epoch):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "sirt3-knockdown.md").write_text("my own notes")  # the last spec in file order
+    result = run("render", "--all", "--out", out, "--registry", EXAMPLES)
+    assert result.status == 1 and "sirt3-knockdown.md" in result.err
+    assert sorted(p.name for p in out.iterdir()) == ["sirt3-knockdown.md"]
+
+
+def test_duplicate_ids_are_not_rendered(run, tmp_path, epoch):
+    registry = tmp_path / "reg"
+    (registry / "copy").mkdir(parents=True)
+    shutil.copy(EXAMPLES / "fibre-butyrate.yaml", registry)
+    shutil.copy(EXAMPLES / "fibre-butyrate.yaml", registry / "copy")
+    result = run("render", "fibre-butyrate", "--out", tmp_path / "one", "--registry", registry)
+    assert result.status == 1 and "used by several files" in result.err
+    result = run("render", "--all", "--out", tmp_path / "all", "--registry", registry)
+    assert result.status == 1 and "duplicate-id" in (tmp_path / "all" / "index.md").read_text()
+    assert not (tmp_path / "all" / "fibre-butyrate.html").exists()
+
+
 def test_symlink_out_of_the_folder_is_refused(run, tmp_path, epoch):
     out, elsewhere = tmp_path / "out", tmp_path / "elsewhere"
     out.mkdir()

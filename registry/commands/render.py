@@ -57,11 +57,12 @@ def _configs(errors: list[str]):
 
 
 def _renderable(report: SpecReport) -> bool:
-    return report.spec is not None and report.sample is not None
+    duplicate = any(f.kind == "duplicate-id" for f in report.findings)
+    return report.spec is not None and report.sample is not None and not duplicate
 
 
 def _why_not(report: SpecReport) -> str:
-    lines = [f"{report.path}: cannot render this spec; it is not valid:"]
+    lines = [f"{report.path}: cannot render this spec:"]
     lines += [f"  {f.field or 'spec'}: {f.message}" for f in report.findings if f.severity == "error"]
     return "\n".join(lines)
 
@@ -129,23 +130,23 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
             return 1
         reports = chosen
     files_by_path = {spec_file.display: spec_file for spec_file in discover(registry)}
-    written: list[Path] = []
+    files: dict[str, str] = {}
     rows: list[IndexRow] = []
     failed = False
+    for report in reports:
+        if not _renderable(report):
+            print(_why_not(report), file=sys.stderr)
+            rows.append(IndexRow(report, None))
+            failed = True
+            continue
+        summary = build_summary(report, files_by_path[report.path].path, rendered_at, index_link=all_specs)
+        files.update(summary.files())
+        rows.append(IndexRow(report, f"{summary.spec_id}.html"))
+    if all_specs:
+        index_md, index_html = build_index(rows, rendered_at)
+        files.update({"index.md": index_md, "index.html": index_html})
     try:
-        for report in reports:
-            if not _renderable(report):
-                print(_why_not(report), file=sys.stderr)
-                rows.append(IndexRow(report, None))
-                failed = True
-                continue
-            spec_file = files_by_path[report.path]
-            summary = build_summary(report, spec_file.path, rendered_at, index_link=all_specs)
-            written += _write(folder, summary.files())
-            rows.append(IndexRow(report, f"{summary.spec_id}.html"))
-        if all_specs:
-            index_md, index_html = build_index(rows, rendered_at)
-            written += _write(folder, {"index.md": index_md, "index.html": index_html})
+        written = _write(folder, files)
     except (WriteRefused, OSError) as error:
         print(f"prespec: error: {error}", file=sys.stderr)
         return 1
