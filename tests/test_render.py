@@ -123,6 +123,7 @@ def test_numbers_match_check(run, rendered):
             == f"{spec['required_per_group']:,}"
         assert _cells(markdown, "Power at the planned n")[1] == f"{spec['achieved_power']:.3f}"
         assert _cells(markdown, "Check verdict")[1] == spec["verdict"]
+        assert _cells(markdown, "as stated")[3] == f"{spec['required_per_group']:,}"
         index_row = _cells((rendered / "index.md").read_text(), next(
             line.split(" | ")[0][2:] for line in (rendered / "index.md").read_text().splitlines()
             if f"`{spec_id}`" in line))

@@ -72,9 +72,11 @@ def _outcome_unit(report: SpecReport) -> str | None:
     return spec.outcomes.primary.unit if spec and spec.outcomes else None
 
 
-def _with_unit(name: str, value: float, unit: str | None) -> str:
+def _with_unit(name: str, value: float, unit: str | None, family: Family) -> str:
+    """A value of an effect field, with the outcome's unit when the field is measured in it (mean-type designs)."""
     text = _num(value)
-    return f"{text} {md.inline(unit)}" if unit and name in _OUTCOME_UNIT_FIELDS else text
+    in_outcome_units = name in _OUTCOME_UNIT_FIELDS and has_spread(family)
+    return f"{text} {md.inline(unit)}" if unit and in_outcome_units else text
 
 
 def figure_name(spec_id: str) -> str:
@@ -186,7 +188,7 @@ def _design(report: SpecReport) -> str:
     for name in type(effect).model_fields:
         value = getattr(effect, name)
         if value is not None:
-            rows.append((md.code(f"effect.{name}"), _with_unit(name, value, unit), _described(type(effect), name)))
+            rows.append((md.code(f"effect.{name}"), _with_unit(name, value, unit, family), _described(type(effect), name)))
     rows.append((f"standardized effect ({md.inline(family.symbol)})", _num(report.sample.effect_size),
                  "computed from the effect above"))
     parts = [md.table(["Assumption", "Value", "Meaning"], rows, ["l", "r", "l"])]
@@ -210,7 +212,7 @@ def _effect_phrase(report: SpecReport) -> str:
     natural = [(n, v) for n, v in stated if n != family.symbol]
     if not natural:
         return f"The effect to detect is stated as a standardized effect size {es}."
-    words = [f"{_EFFECT_WORDS.get(n, md.inline(n) + ' of')} {_with_unit(n, v, unit)}" for n, v in natural]
+    words = [f"{_EFFECT_WORDS.get(n, md.inline(n) + ' of')} {_with_unit(n, v, unit, family)}" for n, v in natural]
     outcome = f" in {md.inline(spec.outcomes.primary.name)}" if spec.outcomes else ""
     return f"The effect to detect is {_join(words)}{outcome}, a standardized effect size of {es}."
 
@@ -350,7 +352,7 @@ def _mde(report: SpecReport) -> str:
     natural = at.minimum_detectable_natural
     symbol = md.inline(family.symbol)
     standardized = f"{symbol} = {at.minimum_detectable_effect:.3g}"
-    words = [f"{_EFFECT_WORDS.get(n, md.inline(n) + ' of')} {_with_unit(n, round(v, 4), unit)}"
+    words = [f"{_EFFECT_WORDS.get(n, md.inline(n) + ' of')} {_with_unit(n, round(v, 4), unit, family)}"
              for n, v in natural.items() if n != family.symbol]
     smallest = f"{_join(words)} ({standardized})" if words else standardized
     return (f"With the planned {_num(at.n_per_group)} analysable {_counted(family)}, alpha {_num(design.alpha)} "
@@ -382,8 +384,9 @@ def _sensitivity(report: SpecReport) -> str:
         note = (f"A larger SD shrinks the standardized effect: SD 20% larger means {symbol} / 1.2. "
                 f"A smaller effect scales {symbol} directly: 20% smaller means {symbol} x 0.8.")
     else:
-        note = (f"The {md.inline(family.title)} states its effect without a standard deviation, so the "
-                f"\"SD larger\" scenarios do not apply; the rows scale the standardized effect {symbol}.")
+        note = (f"This design family ({md.inline(_lower_first(family.title))}) states its effect without a "
+                "standard deviation, so \"SD larger\" has no meaning here and those rows are left out; the rows "
+                f"scale the standardized effect {symbol}.")
     return table + "\n\n" + note
 
 

@@ -14,7 +14,7 @@ import numpy as np
 
 from ..power import MAX_N, InfeasibleDesign
 from ..power.base import DesignBase, Family
-from ..power.solve import enrolment, smallest_n
+from ..power.solve import enrolment, smallest_n, solve_sample_size
 
 __all__ = ["Scenario", "Curve", "SCALES", "has_spread", "n_needed", "sensitivity", "power_curve", "analysable"]
 
@@ -69,6 +69,15 @@ def n_needed(design: DesignBase, effect_size: float) -> tuple[int, int] | None:
     return n, enrolment(n, design.attrition)
 
 
+def _as_stated(design: DesignBase) -> tuple[int, int] | None:
+    """check's own answer for the stated design, so the first row always agrees with it."""
+    try:
+        sample = solve_sample_size(design)
+    except InfeasibleDesign:
+        return None
+    return sample.n_per_group, sample.enrolment_per_group
+
+
 def sensitivity(design: DesignBase, planned: int) -> list[Scenario]:
     """The stated design, then SD 10/20/30% larger (where the family has an SD), then effect 10/20/30% smaller.
 
@@ -89,7 +98,7 @@ def sensitivity(design: DesignBase, planned: int) -> list[Scenario]:
     cases += [(f"effect {scale:.0%} smaller", es * (1 - scale)) for scale in SCALES]
     rows = []
     for label, effect in cases:
-        needed = n_needed(design, effect)
+        needed = _as_stated(design) if label == "as stated" else n_needed(design, effect)
         power = float(family.power(design, np.array([kept]), effect)[0]) if kept >= family.min_n else None
         rows.append(Scenario(label, effect, needed[0] if needed else None, needed[1] if needed else None, power))
     return rows
