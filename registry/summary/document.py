@@ -29,7 +29,7 @@ HISTORY_KINDS: tuple[str, ...] = ("drift", "incomplete-history", "uncommitted", 
 NOT_CHECKED = "history not checked"
 
 #: Effect fields measured in the primary outcome's unit.
-_OUTCOME_UNIT_FIELDS = {"difference", "sd", "sd1", "sd2"}
+_OUTCOME_UNIT_FIELDS = {"difference", "sd", "sd1", "sd2", "margin", "lower", "upper"}
 #: How an effect field reads in a sentence; other fields are shown by name.
 _EFFECT_WORDS = {
     "difference": "a difference of",
@@ -46,6 +46,10 @@ def _template(name: str) -> Template:
 
 
 def _num(value: Any) -> str:
+    if isinstance(value, BaseModel):  # a nested assumption block, e.g. clustering
+        parts = [f"{name} = {_num(getattr(value, name))}" for name in type(value).model_fields
+                 if getattr(value, name) is not None]
+        return ", ".join(parts)
     if isinstance(value, bool):
         return "yes" if value else "no"
     if isinstance(value, float):
@@ -188,7 +192,8 @@ def _design(report: SpecReport) -> str:
     for name in type(effect).model_fields:
         value = getattr(effect, name)
         if value is not None:
-            rows.append((md.code(f"effect.{name}"), _with_unit(name, value, unit, family), _described(type(effect), name)))
+            rows.append((md.code(f"effect.{name}"), _with_unit(name, value, unit, family),
+                         _described(type(effect), name)))
     rows.append((f"standardized effect ({md.inline(family.symbol)})", _num(report.sample.effect_size),
                  "computed from the effect above"))
     parts = [md.table(["Assumption", "Value", "Meaning"], rows, ["l", "r", "l"])]
@@ -233,7 +238,13 @@ def _multiplicity(report: SpecReport) -> str:
     stated = [(n, getattr(design, n)) for n in type(design).model_fields
               if any(w in n for w in ("multip", "comparison", "adjust")) and getattr(design, n) is not None]
     if stated:
-        return "Multiplicity: " + "; ".join(f"{md.inline(n)} = {md.inline(_num(v))}" for n, v in stated) + "."
+        parts = []
+        for name, value in stated:
+            text = f"{md.inline(name)}: {md.inline(_num(value))}"
+            if hasattr(value, "alpha_per_test"):
+                text += f", so each test is run at alpha {_num(value.alpha_per_test(design.alpha))}"
+            parts.append(text)
+        return "Multiplicity is part of the calculation (" + "; ".join(parts) + ")."
     others = max(len(spec.hypotheses) - 1, 0)
     secondary = len(spec.outcomes.secondary) if spec.outcomes else 0
     if not others and not secondary:
@@ -272,6 +283,7 @@ def _justification(report: SpecReport) -> str:
         sentences.append(f"{what}: {md.inline(design.variability_source).rstrip('.')}.")
     elif has_spread(family):
         sentences.append("The source of the standard deviation is not stated.")
+    sentences += _further_assumptions(design)
     sentences.append(f"Method of calculation: {md.inline(family.method)} "
                      f"({md.inline(family.reference).rstrip('.')}).")
     counted = _counted(family)
@@ -288,6 +300,21 @@ def _justification(report: SpecReport) -> str:
     if spec.sample_size.justification:
         text += f"\n\n**Further justification from the investigators.** {md.block(spec.sample_size.justification)}"
     return text
+
+
+def _further_assumptions(design: DesignBase) -> list[str]:
+    """Design-level blocks beyond the common assumptions (clustering and the like), one sentence each."""
+    out = []
+    for name in type(design).model_fields:
+        value = getattr(design, name)
+        if not isinstance(value, BaseModel) or name == "effect" or any(w in name for w in ("multip", "comparison")):
+            continue
+        text = f"The calculation includes {md.inline(name)} ({md.inline(_num(value))})"
+        effect = getattr(value, "design_effect", None)
+        if isinstance(effect, (int, float)):
+            text += f", a design effect of {_num(float(effect))}"
+        out.append(text + ".")
+    return out
 
 
 def _planned_sentence(report: SpecReport) -> str:
@@ -337,6 +364,10 @@ def _size_table(report: SpecReport) -> str:
         note = f"Target power {_num(design.power)}; no attrition is assumed, so enrolment equals the analysable n."
     if family.groups == 2 and design.allocation_ratio != 1:
         note += f" Group 2 gets {_num(design.allocation_ratio)} times the units of group 1, rounded up."
+    if sample.events is not None:
+        note += f" The test needs {_num(sample.events)} events in all."
+    for extra in sample.notes:
+        note += f" {md.inline(extra)}"
     return md.table(head, rows, ["l"] + ["r"] * (len(head) - 1)) + "\n\n" + note
 
 
