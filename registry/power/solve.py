@@ -11,7 +11,7 @@ from scipy import optimize
 from .base import MAX_N, DesignBase, Family, InfeasibleDesign
 from .results import PowerAtN, SampleSize
 
-__all__ = ["smallest_n", "solve_sample_size", "power_at", "minimum_effect", "enrolment"]
+__all__ = ["smallest_n", "solve_sample_size", "power_at", "power_of", "minimum_effect", "enrolment"]
 
 _BLOCK = 8  # candidates evaluated at once around the normal-approximation start
 
@@ -76,10 +76,14 @@ def _checked_effect(family: Family, design: DesignBase) -> float:
     return es
 
 
-def solve_sample_size(design: DesignBase) -> SampleSize:
-    """The smallest analysable n reaching ``design.power``, with enrolment after attrition."""
+def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> SampleSize:
+    """The smallest analysable n reaching ``design.power``, with enrolment after attrition.
+
+    ``effect_size`` replaces the design's standardized effect (what-if analyses).
+    """
     family = design.family
-    es = _checked_effect(family, design)
+    es = _checked_effect(family, design) if effect_size is None else effect_size
+    family.check_direction(design, es)
     start = family.approximate_n(design, es)
     if not math.isfinite(start) or start > MAX_N:
         raise InfeasibleDesign(
@@ -105,6 +109,18 @@ def solve_sample_size(design: DesignBase) -> SampleSize:
         method=family.method,
         reference=family.reference,
     )
+
+
+def power_of(design: DesignBase, n: np.ndarray, effect_size: float | None = None) -> np.ndarray:
+    """Power at each analysable n per group (vectorized), at the design's effect or at ``effect_size``.
+
+    >>> from registry.power import design_from_params
+    >>> [round(float(p), 4) for p in power_of(design_from_params("two-sample-t", d=0.5), [64, 86], 0.5)]
+    [0.8015, 0.9032]
+    """
+    family = design.family
+    es = family.effect_size(design) if effect_size is None else effect_size
+    return family.power(design, np.asarray(n, dtype=float), es)
 
 
 def minimum_effect(design: DesignBase, n: int) -> float | None:

@@ -1,8 +1,9 @@
 """The numbers a summary shows beyond check's: sensitivity scenarios and the power curve.
 
-Everything goes through the :class:`~registry.power.base.Family` interface with a
-standardized effect size, so it works for every design family: "SD 20% larger" divides
-the standardized effect by 1.2 and "effect 20% smaller" multiplies it by 0.8.
+Everything goes through check's solver (:func:`~registry.power.solve.solve_sample_size`
+and :func:`~registry.power.solve.power_of`) with a standardized effect size, so it works
+for every design family and every adjustment the solver makes: "SD 20% larger" divides the
+standardized effect by 1.2 and "effect 20% smaller" multiplies it by 0.8.
 """
 
 from __future__ import annotations
@@ -12,9 +13,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..power import MAX_N, InfeasibleDesign
+from ..power import InfeasibleDesign
 from ..power.base import DesignBase, Family
-from ..power.solve import enrolment, smallest_n, solve_sample_size
+from ..power.solve import power_of, solve_sample_size
 
 __all__ = ["Scenario", "Curve", "SCALES", "has_spread", "n_needed", "sensitivity", "power_curve", "analysable"]
 
@@ -56,23 +57,10 @@ def has_spread(family: Family) -> bool:
     return any(name == "sd" or name.startswith("sd") for name in family.effect_model.model_fields)
 
 
-def n_needed(design: DesignBase, effect_size: float) -> tuple[int, int] | None:
-    """Analysable and enrolled n (group 1) reaching ``design.power`` at ``effect_size``; None if infeasible."""
-    family = design.family
-    start = family.approximate_n(design, effect_size)
-    if not math.isfinite(start) or start > MAX_N:
-        return None
+def n_needed(design: DesignBase, effect_size: float | None = None) -> tuple[int, int] | None:
+    """Analysable and enrolled n (group 1) reaching ``design.power``, by check's own solver; None if infeasible."""
     try:
-        n, _ = smallest_n(lambda n: family.power(design, n, effect_size), design.power, start, family.min_n)
-    except InfeasibleDesign:
-        return None
-    return n, enrolment(n, design.attrition)
-
-
-def _as_stated(design: DesignBase) -> tuple[int, int] | None:
-    """check's own answer for the stated design, so the first row always agrees with it."""
-    try:
-        sample = solve_sample_size(design)
+        sample = solve_sample_size(design, effect_size)
     except InfeasibleDesign:
         return None
     return sample.n_per_group, sample.enrolment_per_group
@@ -98,8 +86,8 @@ def sensitivity(design: DesignBase, planned: int) -> list[Scenario]:
     cases += [(f"effect {scale:.0%} smaller", es * (1 - scale)) for scale in SCALES]
     rows = []
     for label, effect in cases:
-        needed = _as_stated(design) if label == "as stated" else n_needed(design, effect)
-        power = float(family.power(design, np.array([kept]), effect)[0]) if kept >= family.min_n else None
+        needed = n_needed(design, None if label == "as stated" else effect)
+        power = float(power_of(design, [kept], effect)[0]) if kept >= family.min_n else None
         rows.append(Scenario(label, effect, needed[0] if needed else None, needed[1] if needed else None, power))
     return rows
 
@@ -117,5 +105,5 @@ def power_curve(design: DesignBase, *marks: int, points: int = 240) -> Curve:
     high = max(top + 4, math.ceil(top * 1.5))
     grid = np.unique(np.round(np.linspace(family.min_n, high, points)).astype(int))
     grid = np.unique(np.concatenate([grid, [m for m in marks if family.min_n <= m <= high]])).astype(int)
-    power = family.power(design, grid.astype(float), family.effect_size(design))
+    power = power_of(design, grid)
     return Curve(tuple(int(n) for n in grid), tuple(float(p) for p in power))
