@@ -83,7 +83,7 @@ def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> S
     """
     family = design.family
     es = _checked_effect(family, design) if effect_size is None else effect_size
-    family.check_direction(design, es)
+    family.check_direction(design, es)  # a what-if effect must point the same way
     start = family.approximate_n(design, es)
     if not math.isfinite(start) or start > MAX_N:
         raise InfeasibleDesign(
