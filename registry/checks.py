@@ -85,6 +85,11 @@ class SpecReport:
     source_lines: list[str] = field(default_factory=list)
 
     @property
+    def history_checked(self) -> bool:
+        """Whether git history was read for this spec (so 'no history finding' means clean)."""
+        return self.history is not None
+
+    @property
     def planned_per_group(self) -> int | None:
         return self.spec.sample_size.per_group if self.spec else None
 

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from typing import Callable
+from typing import Any, Callable
 
 import numpy as np
 from scipy import optimize
@@ -11,7 +11,8 @@ from scipy import optimize
 from .base import MAX_N, DesignBase, Family, InfeasibleDesign
 from .results import PowerAtN, SampleSize
 
-__all__ = ["smallest_n", "smallest_n_from_which", "solve_sample_size", "power_at", "minimum_effect", "enrolment"]
+__all__ = ["smallest_n", "smallest_n_from_which", "solve_sample_size", "power_at", "power_of", "minimum_effect",
+           "enrolment"]
 
 _BLOCK = 8  # candidates evaluated at once around the normal-approximation start
 _SCAN_LIMIT = 5_000_000  # largest n a non-monotone family's exhaustive scan may reach
@@ -150,8 +151,11 @@ def _individual(design: DesignBase, n: int) -> int:
     return math.floor(n / design.design_effect + 1e-9)
 
 
-def solve_sample_size(design: DesignBase) -> SampleSize:
+def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> SampleSize:
     """The smallest analysable n reaching ``design.power``, with enrolment after attrition.
+
+    ``effect_size`` replaces the design's standardized effect (what-if analyses); it must
+    point the same way as the design's alternative.
 
     The adjustments shared by every family are made here, in this order:
 
@@ -168,7 +172,9 @@ def solve_sample_size(design: DesignBase) -> SampleSize:
     """
     family = design.family
     tested = design.as_tested()
-    es = _checked_effect(family, tested)
+    es = _checked_effect(family, tested) if effect_size is None else effect_size
+    if effect_size is not None:
+        family.check_direction(tested, es)
     start = family.approximate_n(tested, es)
     if not math.isfinite(start) or start > MAX_N:
         raise InfeasibleDesign(
@@ -255,6 +261,25 @@ def _minimum_effect(family: Family, tested: DesignBase, n: int) -> float | None:
             return None
     low = 0.0
     return sign * optimize.brentq(gap, low, high, xtol=1e-10, rtol=1e-10)
+
+
+def power_of(design: DesignBase, n: Any, effect_size: float | None = None) -> np.ndarray:
+    """Power at each analysable n per group (vectorized), at the design's effect or at ``effect_size``.
+
+    Applies the shared adjustments as :func:`power_at` does: the per-test alpha of a
+    multiplicity block, and ``floor(n / design effect)`` independent units for clusters.
+
+    >>> from registry.power import design_from_params
+    >>> [round(float(p), 4) for p in power_of(design_from_params("two-sample-t", d=0.5), [64, 86], 0.5)]
+    [0.8015, 0.9032]
+    """
+    family = design.family
+    tested = design.as_tested()
+    es = family.effect_size(tested) if effect_size is None else effect_size
+    units = np.asarray(n, dtype=float)
+    if design.cluster is not None:
+        units = np.floor(units / design.design_effect + 1e-9)
+    return family.power(tested, units, es)
 
 
 def minimum_effect(design: DesignBase, n: int) -> float | None:

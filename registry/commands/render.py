@@ -1,0 +1,170 @@
+"""``prespec render``: write the design summary of one spec, or of all, as Markdown and HTML."""
+
+from __future__ import annotations
+
+import argparse
+import difflib
+import os
+import sys
+from pathlib import Path
+
+from ..audit import add_history
+from ..checks import CAUTION, SpecReport, check_files
+from ..config import RegistryConfig, find_config, load_config
+from ..discovery import SpecFile, UsageError, discover
+from ..fsutil import WriteRefused, confined, write_atomic
+from ..problems import InvalidSpec
+from ..summary import IndexRow, build_index, build_summary, render_time
+from ..summary.figure import SVG_MARKER
+
+__all__ = ["render", "HELP", "add_arguments", "run"]
+
+HELP = "write a preregistration-style summary (Markdown and HTML) of a spec, or of every spec with --all"
+
+#: How each kind of file render writes begins or identifies itself; only such files are overwritten.
+_OWN_MARKERS = {
+    ".md": "[//]: # (prespec ",
+    ".html": '<meta name="generator" content="prespec ',
+    ".svg": SVG_MARKER,
+}
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("spec_id", nargs="?", metavar="ID", help="id of the spec to render")
+    parser.add_argument("--all", action="store_true", help="render every valid spec and an index.html")
+    parser.add_argument("--out", metavar="DIR", default=None,
+                        help="folder to write into (default: the current folder; required with --all)")
+    parser.add_argument("--registry", metavar="PATH", action="append", default=None,
+                        help="registry folder or spec file to search; repeat for several (default: the current folder)")
+    parser.add_argument("--no-history", action="store_true",
+                        help="do not read git history (the drift verdict then says 'history not checked')")
+
+
+def run(args: argparse.Namespace) -> int:
+    return render(args.spec_id, all_specs=args.all, out=args.out, registry=args.registry or ["."],
+                  history=not args.no_history)
+
+
+def _configs(errors: list[str]):
+    cache: dict[Path | None, RegistryConfig] = {}
+
+    def config_for(spec_file: SpecFile) -> RegistryConfig:
+        where = find_config(spec_file.root)
+        if where not in cache:
+            try:
+                cache[where] = load_config(where)
+            except InvalidSpec as error:
+                errors.append(str(error))
+                cache[where] = RegistryConfig()
+        return cache[where]
+
+    return config_for
+
+
+def _renderable(report: SpecReport) -> bool:
+    duplicate = any(f.kind == "duplicate-id" for f in report.findings)
+    return report.spec is not None and report.sample is not None and not duplicate
+
+
+def _why_not(report: SpecReport) -> str:
+    lines = [f"{report.path}: cannot render this spec:"]
+    lines += [f"  {f.field or 'spec'}: {f.message}" for f in report.findings if f.severity == "error"]
+    return "\n".join(lines)
+
+
+def _own(path: Path) -> bool:
+    marker = _OWN_MARKERS.get(path.suffix)
+    if marker is None:
+        return False
+    try:
+        with path.open(encoding="utf-8", errors="replace") as handle:
+            head = handle.read(4096)
+    except OSError:
+        return False
+    return marker in head
+
+
+def _targets(out: Path, names: list[str]) -> list[Path]:
+    """Confined paths for every file, refusing before anything is written if one may not be replaced."""
+    targets = []
+    for name in names:
+        target = confined(out, name)
+        if target.is_symlink():
+            raise WriteRefused(f"{target} is a symbolic link (to {os.readlink(target)!r}); prespec will not "
+                               "write through it, since it may lead outside the output folder")
+        if target.is_dir():
+            raise WriteRefused(f"{target} is a folder; prespec writes a file of that name")
+        if target.exists() and not _own(target):
+            raise WriteRefused(f"{target} exists and was not written by prespec render; "
+                               "move it away or choose another --out folder")
+        targets.append(target)
+    return targets
+
+
+def _write(out: Path, files: dict[str, str]) -> list[Path]:
+    targets = _targets(out, list(files))
+    for target, text in zip(targets, files.values()):
+        write_atomic(target, text)
+    return targets
+
+
+def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = None,
+           registry: list[str] | None = None, history: bool = True) -> int:
+    """Render one spec (by id) or all; 0 when everything asked for was written, 1 otherwise."""
+    if all_specs == (spec_id is not None):
+        raise UsageError("give a spec ID, or --all (with --out DIR), but not both")
+    if all_specs and out is None:
+        raise UsageError("--all needs --out DIR: the folder for the summaries and index.html")
+    folder = Path(out if out is not None else ".")
+    if folder.exists() and not folder.is_dir():
+        raise UsageError(f"--out {out}: is a file, not a folder")
+    rendered_at = render_time()
+    registry = registry or ["."]
+    config_errors: list[str] = []
+    spec_files = discover(registry)
+    config_for = _configs(config_errors)
+    reports = check_files(spec_files, config_for)
+    if history:
+        add_history(reports, spec_files, registry, config_for)
+    for error in config_errors:
+        print(error, file=sys.stderr)
+    if spec_id is not None:
+        chosen = [r for r in reports if r.id == spec_id]
+        if not chosen:
+            known = sorted({r.id for r in reports if r.id})
+            close = difflib.get_close_matches(spec_id, known, n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            listing = f" Ids found: {', '.join(known)}." if known else " No specs were found there."
+            raise UsageError(f"no spec with id {spec_id!r} under {', '.join(registry)}{hint}{listing}")
+        if len(chosen) > 1:
+            print(f"prespec: error: id {spec_id!r} is used by several files: "
+                  f"{', '.join(r.path for r in chosen)}; ids must be unique", file=sys.stderr)
+            return 1
+        reports = chosen
+    files_by_path = {spec_file.display: spec_file for spec_file in spec_files}
+    files: dict[str, str] = {}
+    rows: list[IndexRow] = []
+    failed = False
+    for report in reports:
+        if not _renderable(report):
+            print(_why_not(report), file=sys.stderr)
+            rows.append(IndexRow(report, None))
+            failed = True
+            continue
+        summary = build_summary(report, files_by_path[report.path].path, rendered_at, index_link=all_specs)
+        files.update(summary.files())
+        rows.append(IndexRow(report, f"{summary.spec_id}.html"))
+    if all_specs:
+        index_md, index_html = build_index(rows, rendered_at)
+        files.update({"index.md": index_md, "index.html": index_html})
+    try:
+        written = _write(folder, files)
+    except (WriteRefused, OSError) as error:
+        print(f"prespec: error: {error}", file=sys.stderr)
+        return 1
+    pages = [p for p in written if p.suffix == ".html"]
+    for path in pages:
+        print(f"wrote {path}")
+    print(f"{len(written)} file{'s' if len(written) != 1 else ''} written to {folder}.")
+    print(f"Note: {CAUTION}")
+    return 1 if failed or config_errors else 0

@@ -1,0 +1,65 @@
+"""Preregistration-style summaries of checked specs: Markdown, HTML with an inline figure, and an index.
+
+This package builds the texts; ``registry/commands/render.py`` finds the specs and writes the files.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import datetime
+from pathlib import Path
+
+from .. import __version__
+from ..checks import CAUTION, SpecReport
+from .document import IndexRow, drift_verdict, figure_alt, figure_name, index_markdown, summary_markdown
+from .figure import inline_svg, power_figure
+from .htmlpage import insert_figure, markdown_to_html, page
+from .numbers import analysable, power_curve
+from .provenance import Provenance, iso_utc, provenance, render_time
+
+__all__ = ["Summary", "build_summary", "build_index", "IndexRow", "drift_verdict", "render_time", "Provenance"]
+
+
+@dataclass(frozen=True)
+class Summary:
+    """The three files of one spec's summary, by file name."""
+
+    spec_id: str
+    markdown: str
+    html: str
+    svg: str
+    provenance: Provenance
+
+    def files(self) -> dict[str, str]:
+        return {f"{self.spec_id}.md": self.markdown, f"{self.spec_id}.html": self.html,
+                figure_name(self.spec_id): self.svg}
+
+
+def build_summary(report: SpecReport, spec_path: Path, rendered_at: datetime, *, index_link: bool = False) -> Summary:
+    """Everything for one valid, sized spec. ``index_link`` adds a link back to ``index.html``."""
+    spec, sample = report.spec, report.sample
+    if spec is None or sample is None:
+        raise ValueError(f"{report.path}: only a valid spec with a computable sample size can be rendered")
+    design = spec.design
+    prov = provenance(report, spec_path, rendered_at)
+    markdown = summary_markdown(report, prov)
+    planned = analysable(spec.sample_size.per_group, design.attrition)
+    shown_planned = planned if planned >= design.family.min_n else None
+    marks = [sample.n_per_group] + ([planned] if shown_planned else [])
+    figure = power_figure(power_curve(design, *marks), target=design.power, required=sample.n_per_group,
+                          planned=shown_planned, unit=design.family.unit, figure_id=f"{spec.id}-power")
+    body = insert_figure(markdown_to_html(markdown), figure_name(spec.id), figure_alt(spec.id),
+                         inline_svg(figure), figure.description)
+    nav = '<nav aria-label="Registry"><a href="index.html">All summaries</a></nav>\n' if index_link else ""
+    html = page(title=f"{spec.title} ({spec.id}): design summary", body=body, rendered_at=iso_utc(rendered_at),
+                tool_version=__version__, caution=CAUTION, nav=nav)
+    return Summary(spec.id, markdown, html, figure.svg, prov)
+
+
+def build_index(rows: list[IndexRow], rendered_at: datetime) -> tuple[str, str]:
+    """Markdown and HTML of the registry index."""
+    stamp = iso_utc(rendered_at)
+    markdown = index_markdown(rows, stamp, __version__)
+    html = page(title="Design registry summaries", body=markdown_to_html(markdown), rendered_at=stamp,
+                tool_version=__version__, caution=CAUTION, wide=True)
+    return markdown, html

@@ -1,0 +1,602 @@
+"""The Markdown of one design summary and of the registry index, filled into the templates.
+
+All numbers come from check's :class:`~registry.checks.SpecReport` (required and planned
+n, achieved power, minimum detectable effect) or from :mod:`.numbers`; all user text
+passes through :mod:`.mdtext` so it cannot turn into markup.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from importlib import resources
+from string import Template
+from typing import Any
+
+from pydantic import BaseModel
+
+from ..checks import CAUTION, Finding, SpecReport
+from ..guidelines import GUIDELINES, REGISTRY_KEEPS, coverage
+from ..power.base import DesignBase, Family
+from . import mdtext as md
+from .numbers import Scenario, analysable, has_spread, sensitivity
+from .provenance import Provenance, iso_utc
+
+__all__ = ["HISTORY_KINDS", "drift_verdict", "summary_markdown", "index_markdown", "IndexRow", "figure_name",
+           "figure_alt"]
+
+#: Finding kinds that come from reading the spec's git history, most serious first.
+HISTORY_KINDS: tuple[str, ...] = ("drift", "incomplete-history", "uncommitted", "amended")
+NOT_CHECKED = "history not checked"
+
+#: Effect fields measured in the primary outcome's unit.
+_OUTCOME_UNIT_FIELDS = {"difference", "sd", "sd1", "sd2", "margin", "lower", "upper"}
+#: How an effect field reads in a sentence; other fields are shown by name.
+_EFFECT_WORDS = {
+    "difference": "a difference of",
+    "sd": "a standard deviation of",
+    "sd1": "a standard deviation in condition 1 of",
+    "sd2": "a standard deviation in condition 2 of",
+    "correlation": "a correlation between paired measurements of",
+}
+_DESIGN_SKIP = {"test", "effect", "effect_rationale", "variability_source"}
+
+
+def _template(name: str) -> Template:
+    return Template(resources.files("registry").joinpath("templates", name).read_text(encoding="utf-8"))
+
+
+def _num(value: Any) -> str:
+    if isinstance(value, BaseModel):  # a nested assumption block, e.g. clustering
+        parts = [f"{name} = {_num(getattr(value, name))}" for name in type(value).model_fields
+                 if getattr(value, name) is not None]
+        return ", ".join(parts)
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, float):
+        return f"{value:,.4g}" if abs(value) < 1e6 else f"{value:,.0f}"
+    if isinstance(value, int):
+        return f"{value:,}"
+    if isinstance(value, (list, tuple)):
+        return ", ".join(_num(v) for v in value)
+    return str(value)
+
+
+def _alternative(design: DesignBase) -> str:
+    return {"two-sided": "two-sided", "greater": "one-sided (an increase)",
+            "less": "one-sided (a decrease)"}[design.alternative]
+
+
+def _counted(family: Family) -> str:
+    """What one n counts: 'units per group', 'units', 'pairs', ..."""
+    return "units per group" if family.unit == "per group" else family.unit
+
+
+def _outcome_unit(report: SpecReport) -> str | None:
+    spec = report.spec
+    return spec.outcomes.primary.unit if spec and spec.outcomes else None
+
+
+def _with_unit(name: str, value: float, unit: str | None, family: Family) -> str:
+    """A value of an effect field, with the outcome's unit when the field is measured in it (mean-type designs)."""
+    text = _num(value)
+    in_outcome_units = name in _OUTCOME_UNIT_FIELDS and has_spread(family)
+    return f"{text} {md.inline(unit)}" if unit and in_outcome_units else text
+
+
+def figure_name(spec_id: str) -> str:
+    return f"{spec_id}-power.svg"
+
+
+def figure_alt(spec_id: str) -> str:
+    return f"Power curve of {spec_id}: power against analysable n, target and planned n marked"
+
+
+def drift_verdict(report: SpecReport) -> str:
+    """The most serious history finding kind; 'clean' when history was read and found nothing;
+    'history not checked' when the report carries no history information."""
+    kinds = {f.kind for f in report.findings}
+    for kind in HISTORY_KINDS:
+        if kind in kinds:
+            return kind
+    return "clean" if getattr(report, "history_checked", False) else NOT_CHECKED
+
+
+# ---------------------------------------------------------------- sections
+
+
+def _key_table(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None and report.sample is not None
+    design, sample = spec.design, report.sample
+    family = design.family
+    power = "-" if report.achieved_power is None else f"{report.achieved_power:.3f}"
+    rows = [
+        ("Design family", md.inline(family.title)),
+        ("Alternative", _alternative(design)),
+        ("Significance level (alpha)", _num(design.alpha)),
+        ("Target power", _num(design.power)),
+        (f"Planned enrolment ({family.unit})", _num(spec.sample_size.per_group)),
+        (f"Required enrolment ({family.unit})", _num(sample.enrolment_per_group)),
+        (f"Required analysable ({family.unit})", _num(sample.n_per_group)),
+        ("Power at the planned n", power),
+        ("Check verdict", report.verdict),
+        ("Drift verdict", drift_verdict(report)),
+    ]
+    return md.table(["Quantity", "Value"], rows)
+
+
+def _question(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None
+    parts = []
+    parts.append(f"**Question.** {md.block(spec.question)}" if spec.question else "No research question stated.")
+    if spec.population:
+        parts.append(f"**Population and experimental unit.** {md.block(spec.population)}")
+    if spec.hypotheses:
+        items = []
+        for i, hypothesis in enumerate(spec.hypotheses, 1):
+            label = md.inline(hypothesis.id) if hypothesis.id else f"H{i}"
+            role = " (primary)" if hypothesis is spec.primary_hypothesis else ""
+            items.append(f"**{label}**{role}: {md.inline(hypothesis.statement)}")
+        parts.append(md.bullets(items))
+    else:
+        parts.append("No hypotheses stated.")
+    return "\n\n".join(parts)
+
+
+def _outcome_line(outcome: Any) -> str:
+    text = f"**{md.inline(outcome.name)}**"
+    details = []
+    if outcome.unit:
+        details.append(f"unit: {md.inline(outcome.unit)}")
+    if outcome.timepoint:
+        details.append(f"when: {md.inline(outcome.timepoint)}")
+    if details:
+        text += " (" + "; ".join(details) + ")"
+    if outcome.description:
+        text += f". {md.inline(outcome.description)}"
+    return text
+
+
+def _outcomes(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None
+    if spec.outcomes is None:
+        return "No outcomes stated."
+    lines = [f"Primary: {_outcome_line(spec.outcomes.primary)}"]
+    lines += [f"Secondary: {_outcome_line(o)}" for o in spec.outcomes.secondary]
+    return md.bullets(lines)
+
+
+def _described(model: type[BaseModel], name: str) -> str:
+    return md.cell(model.model_fields[name].description or "")
+
+
+def _design(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None
+    design = spec.design
+    family = design.family
+    model = type(design)
+    unit = _outcome_unit(report)
+    rows = [(md.code("test"), md.cell(design.test), md.cell(family.title))]
+    for name in model.model_fields:
+        if name in _DESIGN_SKIP or (name == "allocation_ratio" and family.groups != 2):
+            continue
+        value = getattr(design, name)
+        if value is None:
+            continue
+        shown = _alternative(design) if name == "alternative" else md.cell(_num(value))
+        rows.append((md.code(name), shown, _described(model, name)))
+    effect = design.effect
+    for name in type(effect).model_fields:
+        value = getattr(effect, name)
+        if value is not None:
+            rows.append((md.code(f"effect.{name}"), _with_unit(name, value, unit, family),
+                         _described(type(effect), name)))
+    rows.append((f"standardized effect ({md.inline(family.symbol)})", _num(report.sample.effect_size),
+                 "computed from the effect above"))
+    parts = [md.table(["Assumption", "Value", "Meaning"], rows, ["l", "r", "l"])]
+    parts.append(f"**Why this effect.** {md.block(design.effect_rationale)}" if design.effect_rationale
+                 else "**Why this effect.** Not stated.")
+    if has_spread(family):
+        parts.append(f"**Source of the SD.** {md.block(design.variability_source)}" if design.variability_source
+                     else "**Source of the SD.** Not stated.")
+    elif design.variability_source:
+        parts.append(f"**Source of the assumptions.** {md.block(design.variability_source)}")
+    return "\n\n".join(parts)
+
+
+def _effect_phrase(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None and report.sample is not None
+    effect, family = spec.design.effect, spec.design.family
+    unit = _outcome_unit(report)
+    stated = [(n, getattr(effect, n)) for n in type(effect).model_fields if getattr(effect, n) is not None]
+    es = f"{md.inline(family.symbol)} = {report.sample.effect_size:.3g}"
+    natural = [(n, v) for n, v in stated if n != family.symbol]
+    if not natural:
+        return f"The effect to detect is stated as a standardized effect size {es}."
+    words = [f"{_EFFECT_WORDS.get(n, md.inline(n) + ' of')} {_with_unit(n, v, unit, family)}" for n, v in natural]
+    outcome = f" in {md.inline(spec.outcomes.primary.name)}" if spec.outcomes else ""
+    return f"The effect to detect is {_join(words)}{outcome}, a standardized effect size of {es}."
+
+
+def _lower_first(title: str) -> str:
+    """'Two-sample t-test' -> 'two-sample t-test', but 'ANOVA ...' stays."""
+    return title[0].lower() + title[1:] if len(title) > 1 and title[1].islower() else title
+
+
+def _join(words: list[str]) -> str:
+    return words[0] if len(words) == 1 else ", ".join(words[:-1]) + " and " + words[-1]
+
+
+def _multiplicity(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None
+    design = spec.design
+    stated = [(n, getattr(design, n)) for n in type(design).model_fields
+              if any(w in n for w in ("multip", "comparison", "adjust")) and getattr(design, n) is not None]
+    if stated:
+        parts = []
+        for name, value in stated:
+            text = f"{md.inline(name)}: {md.inline(_num(value))}"
+            if hasattr(value, "alpha_per_test"):
+                text += f", so each test is run at alpha {_num(value.alpha_per_test(design.alpha))}"
+            parts.append(text)
+        return "Multiplicity is part of the calculation (" + "; ".join(parts) + ")."
+    others = max(len(spec.hypotheses) - 1, 0)
+    secondary = len(spec.outcomes.secondary) if spec.outcomes else 0
+    if not others and not secondary:
+        return "There is a single hypothesis and a single outcome, so no adjustment for multiple testing arises."
+    extra = []
+    if others:
+        extra.append(f"{others} further hypothes{'is' if others == 1 else 'es'}")
+    if secondary:
+        extra.append(f"{secondary} secondary outcome{'' if secondary == 1 else 's'}")
+    return (f"The calculation covers the primary hypothesis only; {_join(extra)} "
+            "are not part of it and no adjustment for multiple testing enters it.")
+
+
+def _justification(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None and report.sample is not None
+    design, sample = spec.design, report.sample
+    family = design.family
+    primary = spec.primary_hypothesis
+    if primary is not None:
+        label = f" ({md.inline(primary.id)})" if primary.id else ""
+        opening = f"The sample size is based on the primary hypothesis{label}: {md.inline(primary.statement)}"
+        opening = opening.rstrip(".") + "."
+    else:
+        opening = "The sample size is based on the primary comparison of the design."
+    sentences = [
+        opening,
+        f"The primary analysis uses the {md.inline(_lower_first(family.title))}, {_alternative(design)}, at a "
+        f"significance level of {_num(design.alpha)} with a target power of {design.power:.0%}.",
+        _effect_phrase(report),
+    ]
+    if design.effect_rationale:
+        sentences.append(f"Rationale for the effect: {md.inline(design.effect_rationale).rstrip('.')}.")
+    if design.variability_source:
+        what = "The standard deviation comes from" if has_spread(family) else "The assumptions come from"
+        sentences.append(f"{what}: {md.inline(design.variability_source).rstrip('.')}.")
+    elif has_spread(family):
+        sentences.append("The source of the standard deviation is not stated.")
+    sentences += _further_assumptions(design)
+    sentences.append(f"Method of calculation: {md.inline(family.method)} "
+                     f"({md.inline(family.reference).rstrip('.')}).")
+    counted = _counted(family)
+    total = f" ({_num(sample.n_total)} in total)" if sample.n_total != sample.n_per_group else ""
+    sentences.append(f"At least {_num(sample.n_per_group)} analysable {counted}{total} are needed, which gives a "
+                     f"power of {sample.achieved_power:.3f}.")
+    if design.attrition:
+        enrolled_total = f" ({_num(sample.enrolment_total)} in total)" if sample.n_total != sample.n_per_group else ""
+        sentences.append(f"Allowing for {design.attrition:.0%} attrition, {_num(sample.enrolment_per_group)} "
+                         f"{counted}{enrolled_total} are to be enrolled.")
+    sentences.append(_planned_sentence(report))
+    sentences.append(_multiplicity(report))
+    text = " ".join(sentences)
+    if spec.sample_size.justification:
+        text += f"\n\n**Further justification from the investigators.** {md.block(spec.sample_size.justification)}"
+    return text
+
+
+def _further_assumptions(design: DesignBase) -> list[str]:
+    """Design-level blocks beyond the common assumptions (clustering and the like), one sentence each."""
+    out = []
+    for name in type(design).model_fields:
+        value = getattr(design, name)
+        if not isinstance(value, BaseModel) or name == "effect" or any(w in name for w in ("multip", "comparison")):
+            continue
+        text = f"The calculation includes {md.inline(name)} ({md.inline(_num(value))})"
+        effect = getattr(value, "design_effect", None)
+        if isinstance(effect, (int, float)):
+            text += f", a design effect of {_num(float(effect))}"
+        out.append(text + ".")
+    return out
+
+
+def _planned_sentence(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None and report.sample is not None
+    design = spec.design
+    counted = _counted(design.family)
+    planned = spec.sample_size.per_group
+    kept = analysable(planned, design.attrition)
+    left = f", {_num(kept)} analysable after attrition," if design.attrition else ""
+    if report.at_planned is None:
+        return f"The planned enrolment of {_num(planned)} {counted} leaves too few analysable units to test."
+    power = f"power {report.at_planned.power:.3f}"
+    if planned < report.sample.enrolment_per_group:
+        return (f"The planned enrolment of {_num(planned)} {counted}{left} gives only {power}, below the target; "
+                "the design is underpowered as planned.")
+    return f"The planned enrolment of {_num(planned)} {counted}{left} gives {power}."
+
+
+def _size_table(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None and report.sample is not None
+    design, sample = spec.design, report.sample
+    family = design.family
+    planned = spec.sample_size.per_group
+    kept = analysable(planned, design.attrition)
+    planned_sizes = family.group_sizes(design, planned)
+    kept_total = sum(family.group_sizes(design, kept)) if kept >= 1 else 0
+    power = "-" if report.at_planned is None else f"{report.at_planned.power:.3f}"
+    unit = md.inline(family.unit)
+    if family.groups > 1:
+        head = [" ", f"Analysable ({unit})", "Analysable (total)", f"Enrolled ({unit})", "Enrolled (total)", "Power"]
+        rows = [
+            ("Required", _num(sample.n_per_group), _num(sample.n_total), _num(sample.enrolment_per_group),
+             _num(sample.enrolment_total), f"{sample.achieved_power:.3f}"),
+            ("Planned", _num(kept), _num(kept_total), _num(planned), _num(sum(planned_sizes)), power),
+        ]
+    else:
+        head = [" ", f"Analysable ({unit})", f"Enrolled ({unit})", "Power"]
+        rows = [("Required", _num(sample.n_per_group), _num(sample.enrolment_per_group),
+                 f"{sample.achieved_power:.3f}"),
+                ("Planned", _num(kept), _num(planned), power)]
+    if design.attrition:
+        note = (f"Target power {_num(design.power)}; attrition {design.attrition:.0%}, so enrolment = "
+                "analysable / (1 - attrition), rounded up.")
+    else:
+        note = f"Target power {_num(design.power)}; no attrition is assumed, so enrolment equals the analysable n."
+    if family.groups == 2 and design.allocation_ratio != 1:
+        note += f" Group 2 gets {_num(design.allocation_ratio)} times the units of group 1, rounded up."
+    if sample.events is not None:
+        note += f" The test needs {_num(sample.events)} events in all."
+    for extra in sample.notes:
+        note += f" {md.inline(extra)}"
+    return md.table(head, rows, ["l"] + ["r"] * (len(head) - 1)) + "\n\n" + note
+
+
+def _mde(report: SpecReport) -> str:
+    spec = report.spec
+    at = report.at_planned
+    assert spec is not None
+    design = spec.design
+    family = design.family
+    if at is None or at.minimum_detectable_effect is None:
+        return "Too few analysable units remain at the planned enrolment to compute a detectable effect."
+    unit = _outcome_unit(report)
+    natural = at.minimum_detectable_natural
+    symbol = md.inline(family.symbol)
+    standardized = f"{symbol} = {at.minimum_detectable_effect:.3g}"
+    words = [f"{_EFFECT_WORDS.get(n, md.inline(n) + ' of')} {_with_unit(n, round(v, 4), unit, family)}"
+             for n, v in natural.items() if n != family.symbol]
+    smallest = f"{_join(words)} ({standardized})" if words else standardized
+    return (f"With the planned {_num(at.n_per_group)} analysable {_counted(family)}, alpha {_num(design.alpha)} "
+            f"{_alternative(design)} and power {_num(design.power)}, the smallest effect the study can detect is "
+            f"{smallest}. The stated effect is {symbol} = {at.effect_size:.3g}.")
+
+
+def _sensitivity(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None
+    design = spec.design
+    family = design.family
+    rows = sensitivity(design, spec.sample_size.per_group)
+    symbol = md.inline(family.symbol)
+
+    def n(value: int | None) -> str:
+        return "not reachable" if value is None else _num(value)
+
+    def power(row: Scenario) -> str:
+        return "-" if row.power_at_planned is None else f"{row.power_at_planned:.3f}"
+
+    table = md.table(
+        ["Scenario", f"Effect ({symbol})", f"Analysable n needed ({md.inline(family.unit)})",
+         f"Enrolled n needed ({md.inline(family.unit)})", "Power at the planned n"],
+        [(r.label, f"{r.effect_size:.3g}", n(r.n_analysable), n(r.n_enrolled), power(r)) for r in rows],
+        ["l", "r", "r", "r", "r"],
+    )
+    if has_spread(family):
+        note = (f"A larger SD shrinks the standardized effect: SD 20% larger means {symbol} / 1.2. "
+                f"A smaller effect scales {symbol} directly: 20% smaller means {symbol} x 0.8.")
+    else:
+        note = (f"This design family ({md.inline(_lower_first(family.title))}) states its effect without a "
+                "standard deviation, so \"SD larger\" has no meaning here and those rows are left out; the rows "
+                f"scale the standardized effect {symbol}.")
+    return table + "\n\n" + note
+
+
+def _figure(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None
+    return f"![{md.inline(figure_alt(spec.id))}]({figure_name(spec.id)})"
+
+
+def _analysis(report: SpecReport) -> dict[str, str]:
+    spec = report.spec
+    assert spec is not None
+    randomisation = (f"**Randomisation.** {md.block(spec.randomisation)}" if spec.randomisation
+                     else "**Randomisation.** Not stated.")
+    blinding = f"**Blinding.** {md.block(spec.blinding)}" if spec.blinding else "**Blinding.** Not stated."
+    return {
+        "analysis_plan": md.block(spec.analysis_plan) if spec.analysis_plan else "No analysis plan stated.",
+        "exclusions": (md.bullets(md.inline(e) for e in spec.exclusion_criteria) if spec.exclusion_criteria
+                       else "No exclusion criteria stated."),
+        "randomisation": randomisation + "\n\n" + blinding,
+        "stopping_rule": md.block(spec.stopping_rule) if spec.stopping_rule else "No stopping rule stated.",
+    }
+
+
+def _amendments(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None
+    if not spec.amendments:
+        return "No amendments recorded."
+    rows = [(a.date.isoformat(), md.cell(", ".join(a.fields)), md.cell(a.reason), md.cell(a.approved_by or ""))
+            for a in spec.amendments]
+    return md.table(["Date", "Fields", "Reason", "Approved by"], rows)
+
+
+def _finding_line(finding: Finding) -> str:
+    where = md.inline(finding.field) if finding.field else "spec"
+    if finding.line:
+        where += f", line {finding.line}"
+    return f"**{finding.severity}** {md.inline(finding.kind)} ({where}): {md.inline(finding.message)}"
+
+
+def _drift(report: SpecReport) -> str:
+    verdict = drift_verdict(report)
+    history = [f for f in report.findings if f.kind in HISTORY_KINDS]
+    if verdict == NOT_CHECKED:
+        return ("**Verdict: history not checked.** This summary was rendered without reading the spec's git "
+                "history, so it makes no statement about edits after data collection started.")
+    text = f"**Verdict: {md.inline(verdict)}.**"
+    if history:
+        text += "\n\n" + md.bullets(_finding_line(f) for f in history)
+    else:
+        text += " No locked field changed after data collection started."
+    return text
+
+
+def _findings(report: SpecReport) -> str:
+    others = [f for f in report.findings if f.kind not in HISTORY_KINDS]
+    if not others:
+        return "prespec check found nothing to report."
+    return md.bullets(_finding_line(f) for f in others)
+
+
+def _guidelines(report: SpecReport) -> str:
+    spec = report.spec
+    assert spec is not None
+    items = coverage(spec)
+    parts = ["Which items of published reporting guidelines the spec's fields speak to. The topics are "
+             "paraphrased; consult each checklist for its full wording."]
+    for guideline in GUIDELINES:
+        rows = []
+        for item in (c for c in items if c.guideline == guideline.name):
+            fields = ", ".join("registry history" if f == REGISTRY_KEEPS else f for f in item.present + item.missing)
+            status = item.status
+            if item.status == "partly covered":
+                status += " (missing: " + ", ".join(item.missing) + ")"
+            rows.append((item.number, item.topic, status, md.cell(fields)))
+        parts.append(f"### {md.inline(guideline.name)}\n\n"
+                     + md.table(["Item", "Topic", "Status", "Spec fields"], rows, ["r", "l", "l", "l"])
+                     + f"\n\n{md.inline(guideline.reference)}")
+    return "\n\n".join(parts)
+
+
+def _provenance(prov: Provenance) -> str:
+    if prov.commit is None:
+        commit, committed, copy = "not committed to git", "-", "not in git history"
+    else:
+        commit = md.code(prov.commit)
+        committed = iso_utc(prov.committed) if prov.committed else "-"
+        copy = ("has uncommitted changes: this summary shows the working copy, not the commit above"
+                if prov.modified else "identical to the commit above")
+    tags = ", ".join(f"{md.code(name)} at {md.code(sha[:12])}" for name, sha in prov.freeze_tags) or "not frozen"
+    rows = [
+        ("Spec file", md.cell(prov.spec_path)),
+        ("Last commit of the file", commit),
+        ("Committed (UTC)", committed),
+        ("Working copy", copy),
+        ("Data collection starts", prov.data_collection_start.isoformat()),
+        ("Content SHA-256", md.code(prov.content_sha256)),
+        ("Freeze tag", tags),
+        ("Rendered at (UTC)", iso_utc(prov.rendered_at)),
+        ("Rendered by", f"prespec {md.cell(prov.tool_version)}"),
+        ("Verify with", md.code(prov.verify_command)),
+    ]
+    return (md.table(["Record", "Value"], rows) + "\n\n"
+            f"A reviewer can check this registration: in a clone of the registry run {md.code(prov.verify_command)} "
+            "and compare the content SHA-256 it reports with the one above. The hash covers the locked "
+            "(design-defining) fields only, so edits to notes or status do not change it.")
+
+
+# ---------------------------------------------------------------- documents
+
+
+def summary_markdown(report: SpecReport, prov: Provenance) -> str:
+    """The whole Markdown summary of one checked, valid spec."""
+    spec = report.spec
+    if spec is None or report.sample is None:
+        raise ValueError(f"{report.path}: a summary needs a valid spec with a computable sample size")
+    values = {
+        "spec_id": spec.id,
+        "title": md.inline(spec.title),
+        "status": spec.status,
+        "family_title": md.inline(spec.design.family.title),
+        "caution": md.inline(CAUTION),
+        "key_table": _key_table(report),
+        "question": _question(report),
+        "outcomes": _outcomes(report),
+        "design": _design(report),
+        "justification": _justification(report),
+        "size_table": _size_table(report),
+        "mde": _mde(report),
+        "sensitivity": _sensitivity(report),
+        "figure": _figure(report),
+        **_analysis(report),
+        "amendments": _amendments(report),
+        "drift": _drift(report),
+        "findings": _findings(report),
+        "guidelines": _guidelines(report),
+        "provenance": _provenance(prov),
+    }
+    return _template("summary.md").substitute(values)
+
+
+@dataclass(frozen=True)
+class IndexRow:
+    """One line of the index: a rendered spec (with its page) or a file that could not be rendered."""
+
+    report: SpecReport
+    page: str | None
+
+
+def index_markdown(rows: list[IndexRow], rendered_at: str, tool_version: str) -> str:
+    table_rows = []
+    failed = []
+    for row in rows:
+        report, spec = row.report, row.report.spec
+        if row.page is None or spec is None:
+            failed.append(f"{md.inline(report.path)}: {md.inline(report.verdict)}")
+            continue
+        power = "-" if report.achieved_power is None else f"{report.achieved_power:.3f}"
+        table_rows.append((
+            f"[{md.cell(spec.title)}]({row.page})",
+            md.code(spec.id),
+            spec.status,
+            _num(spec.sample_size.per_group),
+            _num(report.required_per_group),
+            power,
+            report.verdict,
+            drift_verdict(report),
+        ))
+    count = f"{len(table_rows)} summar{'y' if len(table_rows) == 1 else 'ies'}"
+    table = (md.table(["Spec", "Id", "Status", "Planned n", "Required n", "Power at planned n", "Check verdict",
+                       "Drift verdict"], table_rows, ["l", "l", "l", "r", "r", "r", "l", "l"])
+             if table_rows else "No valid specs found.")
+    table += "\n\nPlanned and required n are enrolments, per group or per unit as the design family counts them."
+    not_rendered = ""
+    if failed:
+        not_rendered = ("## Not rendered\n\nThese files are not valid specs; run `prespec check` on them for "
+                        "the details.\n\n" + md.bullets(failed))
+    return _template("index.md").substitute(
+        count=count, rendered_at=rendered_at, tool_version=md.inline(tool_version), caution=md.inline(CAUTION),
+        table=table, not_rendered=not_rendered,
+    )

@@ -1,0 +1,85 @@
+"""Where a rendered summary came from: the spec's file, commit, content hash, freeze tags and render time."""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+from datetime import date, datetime, timezone
+from pathlib import Path
+
+from .. import __version__
+from ..audit import registrations
+from ..canonical import content_hash
+from ..checks import SpecReport
+from ..discovery import UsageError
+from ..git import GitProblem, find_repository
+
+__all__ = ["Provenance", "provenance", "render_time", "iso_utc"]
+
+
+@dataclass(frozen=True)
+class Provenance:
+    spec_path: str
+    commit: str | None
+    committed: datetime | None
+    modified: bool
+    data_collection_start: date
+    content_sha256: str
+    freeze_tags: tuple[tuple[str, str], ...]
+    rendered_at: datetime
+    tool_version: str
+    verify_command: str
+
+
+def iso_utc(moment: datetime) -> str:
+    """``2027-03-01T09:30:00Z``: UTC, whole seconds."""
+    return moment.astimezone(timezone.utc).replace(microsecond=0).strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def render_time() -> datetime:
+    """Now in UTC, or the moment SOURCE_DATE_EPOCH names (seconds since 1970), for reproducible output."""
+    raw = os.environ.get("SOURCE_DATE_EPOCH")
+    if raw is None or raw.strip() == "":
+        return datetime.now(timezone.utc).replace(microsecond=0)
+    try:
+        seconds = int(raw.strip())
+        return datetime.fromtimestamp(seconds, timezone.utc)
+    except (ValueError, OverflowError, OSError):
+        raise UsageError(
+            f"SOURCE_DATE_EPOCH must be a whole number of seconds since 1970-01-01 UTC; got {raw!r}"
+        ) from None
+
+
+def provenance(report: SpecReport, path: Path, rendered_at: datetime) -> Provenance:
+    """Provenance of a checked spec; its git facts come from the history ``check`` read."""
+    spec = report.spec
+    assert spec is not None
+    repo = find_repository(Path(path).absolute())
+    relative = repo.relpath(path) if repo is not None else None
+    last = report.history.last if report.history is not None else None
+    modified = False
+    tags: tuple[tuple[str, str], ...] = ()
+    if repo is not None and relative is not None:
+        try:
+            modified = relative in repo.dirty_paths() or not repo.is_tracked(relative)
+            tags = tuple((r.tag.name, r.tag.commit) for r in registrations(repo, spec.id))
+        except GitProblem:
+            modified = True  # cannot tell: never claim the summary matches a commit
+    return Provenance(
+        spec_path=relative or report.path,
+        commit=last.sha if last else None,
+        committed=last.committer_date if last else None,
+        modified=modified,
+        data_collection_start=spec.data_collection.start,
+        content_sha256=content_hash(spec),
+        freeze_tags=tags,
+        rendered_at=rendered_at,
+        tool_version=__version__,
+        verify_command=_verify_command(spec.id, relative),
+    )
+
+
+def _verify_command(spec_id: str, relative: str | None) -> str:
+    """What a reviewer runs from the root of a clone of the registry's repository."""
+    folder = Path(relative).parent.as_posix() if relative else "."
+    return f"prespec verify {spec_id}" if folder == "." else f"prespec verify {spec_id} {folder}"
