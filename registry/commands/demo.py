@@ -22,8 +22,14 @@ __all__ = ["demo", "build_demo", "HELP", "add_arguments", "run", "EXAMPLES"]
 
 HELP = "build a demonstration lab registry (a git repository with dated commits) and check it"
 
+def _examples() -> Path:
+    """The example registry: the source tree's, else the copy installed inside the package."""
+    source = Path(__file__).resolve().parents[2] / "example_registry"
+    return source if source.is_dir() else Path(__file__).resolve().parents[1] / "example_registry"
+
+
 #: The invented example specs the demo starts from.
-EXAMPLES = Path(__file__).resolve().parents[2] / "example_registry"
+EXAMPLES = _examples()
 
 _LEAD = ("Metabolism group lead", "metabolism-lead@example.org")
 _POSTDOC = ("Physiology postdoc", "physiology-postdoc@example.org")
