@@ -80,9 +80,11 @@ def test_json_contract_on_the_example_registry(run):
 
 def test_example_registry_has_no_false_drift_in_this_repository(run):
     # The examples' start dates lie years after this project's commits, so no edit of ours is drift.
+    # (An uncommitted edit of an example is a warning before its start, so work in progress passes.)
     payload = run("check", EXAMPLES, "--json").json()
-    kinds = {f["kind"] for s in payload["specs"] for f in s["findings"]}
-    assert not kinds & {"drift", "amended", "uncommitted"}
+    findings = [f for s in payload["specs"] for f in s["findings"]]
+    assert not {f["kind"] for f in findings} & {"drift", "amended"}
+    assert not [f for f in findings if f["kind"] == "uncommitted" and f["severity"] == "error"]
 
 
 def test_human_table_flags_under_and_oversized(run):
