@@ -3,13 +3,15 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Callable
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
+from .discovery import SpecFile
 from .problems import InvalidSpec
 from .yamlio import load_file
 
-__all__ = ["RegistryConfig", "CONFIG_NAME", "load_config", "find_config"]
+__all__ = ["RegistryConfig", "CONFIG_NAME", "load_config", "find_config", "config_loader"]
 
 CONFIG_NAME = ".prespec.yaml"
 
@@ -55,3 +57,23 @@ def load_config(path: Path | None) -> RegistryConfig:
         from .validation import _problems
 
         raise InvalidSpec(str(path), _problems(exc, RegistryConfig, doc.data, doc), doc.source_lines) from None
+
+
+def config_loader(errors: list[str], oversize_margin: float | None = None) -> Callable[[SpecFile], RegistryConfig]:
+    """``config_for(spec_file)``: the settings of the registry a spec belongs to, each config file
+    read once; a broken config adds its problems to ``errors`` and the defaults apply.
+    ``oversize_margin`` (a command-line value) overrides every registry's own."""
+    cache: dict[Path | None, RegistryConfig] = {}
+
+    def config_for(spec_file: SpecFile) -> RegistryConfig:
+        where = find_config(spec_file.root)
+        if where not in cache:
+            try:
+                cache[where] = load_config(where)
+            except InvalidSpec as error:
+                errors.append(str(error))
+                cache[where] = RegistryConfig()
+        config = cache[where]
+        return config if oversize_margin is None else config.model_copy(update={"oversize_margin": oversize_margin})
+
+    return config_for

@@ -7,7 +7,6 @@ import shutil
 import textwrap
 from pathlib import Path
 
-import pytest
 
 from registry.power import sample_size
 

@@ -6,7 +6,6 @@ These scan the source (AST, so comments and strings do not count); a failure nam
 from __future__ import annotations
 
 import ast
-from pathlib import Path
 
 from .conftest import ROOT
 

@@ -4,13 +4,11 @@ from __future__ import annotations
 
 import argparse
 import sys
-from pathlib import Path
 
 from ..audit import add_history
 from ..checks import CAUTION, SpecReport, check_files
-from ..config import RegistryConfig, find_config, load_config
-from ..discovery import SpecFile, UsageError, discover
-from ..problems import InvalidSpec
+from ..config import config_loader
+from ..discovery import UsageError, discover
 from ..report import console, print_findings, print_table, summary_line, to_json
 
 __all__ = ["check", "HELP", "add_arguments", "run"]
@@ -34,23 +32,6 @@ def run(args: argparse.Namespace) -> int:
                  history=not args.no_history)
 
 
-def _config_loader(margin: float | None, errors: list[str]):
-    cache: dict[Path | None, RegistryConfig] = {}
-
-    def config_for(spec_file: SpecFile) -> RegistryConfig:
-        where = find_config(spec_file.root)
-        if where not in cache:
-            try:
-                cache[where] = load_config(where)
-            except InvalidSpec as error:
-                errors.append(str(error))
-                cache[where] = RegistryConfig()
-        config = cache[where]
-        return config if margin is None else config.model_copy(update={"oversize_margin": margin})
-
-    return config_for
-
-
 def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | None = None,
           history: bool = True) -> int:
     """Check every spec under ``paths``; 0 when no error finding, 1 otherwise."""
@@ -58,7 +39,7 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
         raise UsageError(f"--oversize-margin must be between 0 and 10; got {oversize_margin!r}")
     files = discover(paths)
     config_errors: list[str] = []
-    config_for = _config_loader(oversize_margin, config_errors)
+    config_for = config_loader(config_errors, oversize_margin)
     reports: list[SpecReport] = check_files(files, config_for)
     status = add_history(reports, files, paths, config_for) if history else None
     failed = any(r.has_errors for r in reports) or bool(config_errors)

@@ -10,10 +10,9 @@ from pathlib import Path
 
 from ..audit import add_history
 from ..checks import CAUTION, SpecReport, check_files
-from ..config import RegistryConfig, find_config, load_config
-from ..discovery import SpecFile, UsageError, discover
+from ..config import config_loader
+from ..discovery import UsageError, discover
 from ..fsutil import WriteRefused, confined, write_atomic
-from ..problems import InvalidSpec
 from ..summary import IndexRow, build_index, build_summary, render_time
 from ..summary.figure import SVG_MARKER
 
@@ -43,22 +42,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     return render(args.spec_id, all_specs=args.all, out=args.out, registry=args.registry or ["."],
                   history=not args.no_history)
-
-
-def _configs(errors: list[str]):
-    cache: dict[Path | None, RegistryConfig] = {}
-
-    def config_for(spec_file: SpecFile) -> RegistryConfig:
-        where = find_config(spec_file.root)
-        if where not in cache:
-            try:
-                cache[where] = load_config(where)
-            except InvalidSpec as error:
-                errors.append(str(error))
-                cache[where] = RegistryConfig()
-        return cache[where]
-
-    return config_for
 
 
 def _renderable(report: SpecReport) -> bool:
@@ -122,7 +105,7 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     registry = registry or ["."]
     config_errors: list[str] = []
     spec_files = discover(registry)
-    config_for = _configs(config_errors)
+    config_for = config_loader(config_errors)
     reports = check_files(spec_files, config_for)
     if history:
         add_history(reports, spec_files, registry, config_for)

@@ -24,6 +24,8 @@ __all__ = [
     "InvalidDesign",
     "InfeasibleDesign",
     "UnknownFamily",
+    "Family",
+    "DesignBase",
     "SampleSize",
     "PowerAtN",
     "FAMILIES",

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 
-from pydantic import Field, model_validator
+from pydantic import model_validator
 
 from .base import EffectBase, locked
 from .mean_difference import _require_difference_or_d
