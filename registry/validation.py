@@ -17,7 +17,7 @@ from typing import Any, Union
 from pydantic import BaseModel, ValidationError
 
 from .model import Spec
-from .power.catalog import family_names
+from .power.catalog import UnknownFamily, family_names
 from .problems import NO_VALUE, InvalidSpec, Problem
 from .yamlio import Document
 
@@ -198,9 +198,7 @@ def _message(error: dict[str, Any], loc: tuple[Any, ...], model: type[BaseModel]
         known = ", ".join(family_names())
         if not isinstance(tag, str):
             return f"test must name a design family as text; got {_short(tag)}. Known families: {known}"
-        close = difflib.get_close_matches(tag, family_names(), n=1, cutoff=0.6)
-        hint = f"; did you mean {close[0]!r}?" if close else "."
-        return f"{_short(tag)} is not a known design family{hint} Known families: {known}"
+        return str(UnknownFamily(tag if len(tag) <= 80 else tag[:77] + "..."))
     if kind == "union_tag_not_found":
         return f"test is required but missing: name the design family, one of {', '.join(family_names())}"
     if kind in ("value_error", "assertion_error"):

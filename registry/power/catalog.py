@@ -52,8 +52,8 @@ class UnknownFamily(ValueError):
     def __init__(self, name: object) -> None:
         self.name = name
         known = ", ".join(family_names())
-        close = difflib.get_close_matches(str(name), family_names(), n=1)
-        hint = f"; did you mean {close[0]!r}?" if close else ""
+        close = difflib.get_close_matches(str(name), family_names(), n=1, cutoff=0.6)
+        hint = f"; did you mean {close[0]!r}?" if close else "."
         super().__init__(f"{name!r} is not a known design family{hint} Known families: {known}")
 
 
