@@ -308,7 +308,8 @@ class Family(ABC):
 
         z_alpha = -ndtri(design.alpha / (2 if design.alternative == "two-sided" else 1))
         z_beta = ndtri(design.power)
-        per = (z_alpha + z_beta) ** 2 / max(effect_size**2, 1e-300)
+        ratio = (z_alpha + z_beta) / max(abs(effect_size), 1e-300)
+        per = ratio * ratio if ratio < 1e150 else math.inf  # squares of extreme effects overflow Python floats
         return per * (1 + 1 / design.allocation_ratio) if self.groups == 2 else per
 
     def group_sizes(self, design: DesignBase, n: int) -> tuple[int, ...]:
