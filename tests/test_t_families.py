@@ -178,3 +178,12 @@ def test_power_array_is_vectorized():
     design = design_from_params("two-sample-t", d=0.5)
     values = design.family.power(design, np.array([10, 64, 200]))
     assert values.shape == (3,) and np.all(np.diff(values) > 0)
+
+
+@pytest.mark.parametrize("params", [{"d": 150.0}, {"difference": 1e300, "sd": 1.0}, {"difference": 1.0, "sd": 5e-324}])
+def test_absurd_effects_are_refused_with_a_reason(params):
+    # A standardized effect beyond 100 SDs is a unit mistake, not a design: refused, never sized.
+    from registry.power import InfeasibleDesign
+
+    with pytest.raises(InfeasibleDesign, match="units of the effect"):
+        sample_size("two-sample-t", **params)

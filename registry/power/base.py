@@ -27,12 +27,16 @@ __all__ = [
     "Family",
     "InfeasibleDesign",
     "MAX_N",
+    "MAX_EFFECT",
     "fraction_validator",
     "locked",
     "free",
 ]
 
 Alternative = Literal["two-sided", "greater", "less"]
+
+#: The largest standardized effect (in absolute value) prespec accepts; larger ones are unit mistakes.
+MAX_EFFECT = 100.0
 
 #: The largest sample size per group prespec will report; beyond it a design is infeasible.
 MAX_N = 100_000_000
@@ -352,9 +356,20 @@ class Family(ABC):
 
     def check_direction(self, design: DesignBase, effect_size: float) -> None:
         """Refuse a zero effect or a one-sided alternative pointing the wrong way."""
-        if effect_size == 0 or not math.isfinite(effect_size):
+        if not math.isfinite(effect_size):
             raise InfeasibleDesign(
-                f"the effect size is {effect_size!r}: no sample size can detect a zero difference", "design.effect"
+                f"the standardized effect size is {effect_size!r}: the stated spread is too small (or the "
+                "difference too large) for a real outcome; check the units of the effect", "design.effect"
+            )
+        if effect_size == 0:
+            raise InfeasibleDesign(
+                "the effect size is 0: no sample size can detect a zero difference", "design.effect"
+            )
+        if abs(effect_size) > MAX_EFFECT:
+            raise InfeasibleDesign(
+                f"the standardized effect size ({self.symbol_for(design)} = {effect_size:.4g}) is more than "
+                f"{MAX_EFFECT:g} in absolute value, which no real outcome shows; check the units of the effect "
+                "(difference and SD in the same unit)", "design.effect"
             )
         if design.alternative == "greater" and effect_size < 0:
             raise InfeasibleDesign(
