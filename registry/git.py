@@ -345,6 +345,30 @@ class Repository:
     def delete_tag(self, name: str) -> None:
         self._run("tag", "-d", "--", name)
 
+    def checkout(self, rev: str, *, new_branch: str | None = None, detach: bool = False) -> None:
+        """``git checkout`` ``rev`` (onto a new branch, or detached)."""
+        self._refuse_option(rev, new_branch or "")
+        args = ["checkout", "-q"] + (["-b", new_branch] if new_branch else []) + (["--detach"] if detach else [])
+        self._run(*args, rev, "--")
+
+    def merge(self, rev: str) -> bool:
+        """Start merging ``rev`` into HEAD without committing (``--no-ff --no-commit``): ``True`` when
+        git merged cleanly, ``False`` when it stopped on conflicts (resolve, then :meth:`commit_all`)."""
+        self._refuse_option(rev)
+        try:
+            self._run("merge", "-q", "--no-ff", "--no-commit", rev)
+        except GitProblem:
+            if (Path(self._repo.git_dir) / "MERGE_HEAD").exists():
+                return False
+            raise
+        return True
+
+    @staticmethod
+    def _refuse_option(*names: str) -> None:
+        for name in names:
+            if name.startswith("-"):
+                raise GitProblem(f"{name!r} is not a revision or branch name")
+
     def reset_hard(self, rev: str) -> None:
         self._run("reset", "-q", "--hard", rev, "--")
 
