@@ -11,7 +11,7 @@ import dataclasses
 import os
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from datetime import date, datetime
+from datetime import date, datetime, timezone
 from pathlib import Path
 from typing import Any
 
@@ -19,12 +19,12 @@ from .checks import Finding, SpecReport, check_files
 from .config import RegistryConfig
 from .discovery import SpecFile, UsageError, discover, display_name
 from .git import Commit, GitProblem, Repository, TagInfo, find_repository
-from .history import Event, Snapshot, SnapshotStore, SpecHistory, analyze, dotted_loc, spec_events, \
-    uncommitted_findings
+from .history import Event, Snapshot, SnapshotStore, SpecHistory, UnreadableBlob, analyze, dotted_loc, \
+    spec_events, uncommitted_findings
 from .registration import InvalidRegistration, parse_block, tag_version
 
 __all__ = ["RegistryHistory", "read_history", "add_history", "HistoryStatus", "find_spec", "Provenance",
-           "provenance", "registrations", "Registration", "worktree_snapshot"]
+           "provenance", "registrations", "Registration", "worktree_snapshot", "spec_history"]
 
 
 @dataclass(frozen=True)
@@ -49,6 +49,8 @@ class RegistryHistory:
     head_ids: dict[str, tuple[str, str]]
     commit_dates: dict[str, datetime]
     commits: dict[str, Commit]
+    detached: bool = False
+    now: datetime = field(default_factory=lambda: datetime.now(timezone.utc))
     _cache: dict[tuple[str, tuple[str, ...], bool], SpecHistory] = field(default_factory=dict)
 
     def history(self, spec_id: str, extra_locked: Sequence[str] = (), *, detail: bool = False) -> SpecHistory:
@@ -56,28 +58,58 @@ class RegistryHistory:
         if key not in self._cache:
             self._cache[key] = analyze(spec_id, self.events.get(spec_id, []), self.store,
                                        extra_locked=extra_locked, shallow=self.shallow, detail=detail,
-                                       commit_dates=self.commit_dates)
+                                       commit_dates=self.commit_dates, now=self.now)
         return self._cache[key]
+
+    def unattributed(self) -> dict[str, str]:
+        """Unreadable versions (blob id -> what git said) that belong to no spec prespec could name."""
+        used = {blob for events in self.events.values() for e in events
+                for blob in (e.old_blob, e.new_blob, *e.other_blobs) if blob}
+        used |= {blob for _, blob in self.head_ids.values()}
+        return {blob: why for blob, why in self.store.unreadable().items() if blob not in used}
 
     def head_snapshot(self, spec_id: str) -> Snapshot | None:
         where = self.head_ids.get(spec_id)
         return self.store.get(where[1]) if where else None
 
 
-def read_history(repo: Repository) -> RegistryHistory:
-    """Read every spec's versions from ``repo`` with one ``git log`` and one blob reader."""
+def read_history(repo: Repository, known_paths: dict[str, str] | None = None) -> RegistryHistory:
+    """Read every spec's versions from ``repo`` with one ``git log`` and one blob reader.
+
+    A version git cannot read (a missing or corrupt object) becomes an unreadable snapshot, named
+    by the id its path holds in ``known_paths`` (repository path -> id, from the working tree) when
+    nothing else names it; :class:`GitProblem` only when git cannot list the history at all.
+    """
+    known = known_paths or {}
     log = repo.log()
     tree = repo.tree_files()
-    wanted = {sha for entry in log for change in entry.changes for sha in (change.old_blob, change.new_blob) if sha}
-    store = SnapshotStore(repo.read_blob, repo.read_blobs(sorted(wanted | set(tree.values()))))
+    wanted = {sha for entry in log for change in entry.changes
+              for sha in (change.old_blob, change.new_blob, *change.other_blobs) if sha}
+
+    def read(sha: str) -> bytes:
+        try:
+            return repo.read_blob(sha)
+        except GitProblem as error:
+            raise UnreadableBlob(f"git in {repo.root} says: {error}") from None
+
+    store = SnapshotStore(read, repo.read_blobs(sorted(wanted | set(tree.values()))))
     commits = {entry.commit.sha: entry.commit for entry in log}
     head_ids: dict[str, tuple[str, str]] = {}
     for path, blob in tree.items():
-        spec_id = store.get(blob).id
+        snap = store.get(blob)
+        spec_id = snap.id or (known.get(path) if snap.unreadable else None)
         if spec_id and spec_id not in head_ids:
             head_ids[spec_id] = (path, blob)
-    return RegistryHistory(repo, repo.head(), repo.is_shallow(), store, spec_events(log, store), head_ids,
-                           {sha: c.committer_date for sha, c in commits.items()}, commits)
+    return RegistryHistory(repo, repo.head(), repo.is_shallow(), store, spec_events(log, store, known), head_ids,
+                           {sha: c.committer_date for sha, c in commits.items()}, commits, repo.detached())
+
+
+def spec_history(registry: RegistryHistory, spec_id: str, extra_locked: Sequence[str] = (), *,
+                 detail: bool = False, tags: Sequence[TagInfo] | None = None) -> SpecHistory:
+    """One spec's history with the registration-tag findings added (a rewritten history under a tag)."""
+    history = registry.history(spec_id, extra_locked, detail=detail)
+    rewritten = _unreachable_tags(registry.repo, spec_id, tags)
+    return dataclasses.replace(history, findings=history.findings + rewritten) if rewritten else history
 
 
 def registrations(repo: Repository, spec_id: str, tags: Sequence[TagInfo] | None = None) -> list[Registration]:
@@ -117,15 +149,19 @@ class HistoryStatus:
         return bool(self.repositories)
 
     def message(self) -> str | None:
+        lines = []
         if not self.repositories and self.outside:
-            return ("No git history checked: the specs are not inside a git repository, so design changes after "
-                    "the start of data collection cannot be detected.")
-        if self.outside:
-            return f"No git history checked for {len(self.outside)} spec(s) outside any git repository."
-        shallow = [r["root"] for r in self.repositories if r["shallow"]]
-        if shallow:
-            return "History is incomplete: shallow clone; drift cannot be ruled out."
-        return None
+            lines.append("No git history checked: the specs are not inside a git repository, so design changes "
+                         "after the start of data collection cannot be detected.")
+        elif self.outside:
+            lines.append(f"No git history checked for {len(self.outside)} spec(s) outside any git repository.")
+        if any(r["shallow"] for r in self.repositories):
+            lines.append("History is incomplete: shallow clone; drift cannot be ruled out.")
+        for repository in self.repositories:
+            if repository.get("detached"):
+                lines.append(f"HEAD is detached in {repository['root']}: the history checked is the one leading to "
+                             f"commit {str(repository['head'])[:10]}, not a branch's.")
+        return "\n".join(lines) or None
 
     def to_dict(self) -> dict[str, Any]:
         return {"checked": self.checked, "repositories": self.repositories, "outside_repository": self.outside,
@@ -178,34 +214,45 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
         if repo is not None and repo.root not in repos:
             repos[repo.root] = (repo, [])
     for root, (repo, members) in repos.items():
+        known = {rel: report.id for report, spec_file in members if report.id
+                 for rel in [repo.relpath(spec_file.path)] if rel}
         try:
-            registry = read_history(repo)
+            registry = read_history(repo, known)
+            all_tags = repo.tags("prespec")
         except GitProblem as error:
             status.problems.append(f"{root}: {error}")
+            for report, _ in members:
+                report.findings.append(Finding(
+                    "history-unreadable", "error", "", None,
+                    f"the git history of {root} cannot be read ({error}); drift cannot be ruled out. Run "
+                    "'git fsck' there and restore the missing objects from another clone"))
             continue
         status.repositories.append({"root": str(root), "head": registry.head, "shallow": registry.shallow,
-                                    "commits": len(registry.commits)})
+                                    "detached": registry.detached, "commits": len(registry.commits)})
         seen: set[str] = set()
-        all_tags = repo.tags("prespec")
         for report, spec_file in members:
             if report.id is None:
                 continue
             seen.add(report.id)
             extra = config_for(spec_file).locked_fields if config_for else []
-            history = registry.history(report.id, extra)
+            history = spec_history(registry, report.id, extra, tags=all_tags)
             report.history = history
             found = list(history.findings)
             work = worktree_snapshot(report)
             if work is not None:
-                found += uncommitted_findings(registry.head_snapshot(report.id), work, today,
-                                              extra_locked=extra, started_on=history.started_on)
-            found += _unreachable_tags(repo, report.id, all_tags)
+                head = registry.head_snapshot(report.id)
+                if head is None:  # the working-tree check below says "untracked" with the right severity
+                    found = [f for f in found if f.kind != "untracked"]
+                found += uncommitted_findings(head, work, today, extra_locked=extra, started_on=history.started_on)
             report.findings += [_with_position(f, report) for f in found]
-        reports += _deleted_reports(registry, seen, scopes)
+        for blob, why in registry.unattributed().items():
+            status.problems.append(f"{root}: a version of a spec file (blob {blob[:10]}) cannot be read, and no "
+                                   f"spec it belongs to could be named; its history may be incomplete ({why})")
+        reports += _deleted_reports(registry, seen, scopes, all_tags)
     return status
 
 
-def _unreachable_tags(repo: Repository, spec_id: str, tags: Sequence[TagInfo]) -> list[Finding]:
+def _unreachable_tags(repo: Repository, spec_id: str, tags: Sequence[TagInfo] | None) -> list[Finding]:
     out = []
     for registration in registrations(repo, spec_id, tags):
         if not registration.tag.reachable:
@@ -217,27 +264,25 @@ def _unreachable_tags(repo: Repository, spec_id: str, tags: Sequence[TagInfo]) -
     return out
 
 
-def _deleted_reports(registry: RegistryHistory, seen: set[str], scopes: Sequence[Path]) -> list[SpecReport]:
+def _deleted_reports(registry: RegistryHistory, seen: set[str], scopes: Sequence[Path],
+                     tags: Sequence[TagInfo]) -> list[SpecReport]:
     out = []
     for spec_id, events in registry.events.items():
         if spec_id in seen:
             continue
-        history = registry.history(spec_id)
+        history = spec_history(registry, spec_id, tags=tags)
         where = registry.head_ids.get(spec_id)
         last_path = where[0] if where else history.last_path
         if last_path is None or not _in_scope(registry.repo.root / last_path, scopes):
             continue
         report = SpecReport(path=display_name(registry.repo.root / last_path), id=spec_id)
         if where:
-            message = (f"spec {spec_id!r} is in HEAD ({last_path}) but not in the working tree: it was deleted "
-                       "and the deletion is not committed")
-        else:
-            gone = next((e for e in reversed(events) if e.new_blob is None), events[-1])
-            message = (f"spec {spec_id!r} was deleted in commit {gone.commit.short} on "
-                       f"{gone.commit.committer_date.isoformat(timespec='minutes')} by {gone.commit.author}; "
-                       f"its last version was {last_path}. A registered experiment should be withdrawn "
-                       "(status: withdrawn), not deleted, so its record stays")
-        report.findings.append(Finding("deleted", "warning", "", None, message))
+            report.findings.append(Finding(
+                "deleted", "warning", "", None,
+                f"spec {spec_id!r} is in HEAD ({last_path}) but not in the working tree: it was deleted and the "
+                "deletion is not committed"))
+        # the history's own findings: "deleted" (the commit that removed it) first, then the rest
+        report.findings += sorted(history.findings, key=lambda f: f.kind != "deleted")
         report.history = history
         out.append(report)
     return out
@@ -267,7 +312,7 @@ class Provenance:
     """Where a spec stands in git, for summaries: verdict, last commit and registration."""
 
     id: str
-    verdict: str  # drift, incomplete, amended, clean, uncommitted, no-repository
+    verdict: str  # a history verdict (registry.history.verdict_of), uncommitted, no-repository
     repository: str | None = None
     head: str | None = None
     last_commit: str | None = None
@@ -301,10 +346,11 @@ def provenance(spec_file: SpecFile, report: SpecReport, extra_locked: Sequence[s
             found += uncommitted_findings(registry.head_snapshot(spec_id), work, today or date.today(),
                                           extra_locked=extra_locked, started_on=history.started_on)
         regs = [r for r in registrations(repo, spec_id) if r.fields]
-    except GitProblem:
-        return Provenance(spec_id, "no-repository", str(repo.root))
+    except GitProblem as error:
+        return Provenance(spec_id, "unreadable", str(repo.root), findings=(Finding(
+            "history-unreadable", "error", "", None, f"the git history of {repo.root} cannot be read ({error})"),))
     verdict = history.verdict
-    if verdict in ("clean", "amended") and any(f.kind == "uncommitted" for f in found):
+    if verdict in ("clean", "amended") and any(f.kind in ("uncommitted", "untracked") for f in found):
         verdict = "uncommitted"
     last = history.last
     latest = regs[-1] if regs else None

@@ -70,12 +70,18 @@ class Commit:
 
 @dataclass(frozen=True)
 class FileChange:
-    """One file's change in one commit against its first parent (``None``: absent on that side)."""
+    """One file's change in one commit against its first parent (``None``: absent on that side).
+
+    For a merge commit, a file is listed only when its merged content differs from every
+    parent's (git's combined diff); ``other_blobs`` then holds the file's blob in the second
+    and later parents (``None``: absent there).
+    """
 
     old_path: str | None
     new_path: str | None
     old_blob: str | None
     new_blob: str | None
+    other_blobs: tuple[str | None, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -127,16 +133,18 @@ def _parse_log(raw: bytes, suffixes: tuple[str, ...]) -> list[LogEntry]:
             meta = token.decode("ascii", "replace").split()
             path = tokens[i + 1].decode("utf-8", "surrogateescape") if i + 1 < count else ""
             i += 2
-            parents = token.count(b":", 0, len(token) - len(token.lstrip(b":")))
-            if parents != 1 or len(meta) < 5 or not path.endswith(suffixes):
+            parents = len(token) - len(token.lstrip(b":"))
+            if len(meta) < 2 * parents + 3 or not path.endswith(suffixes):
                 continue
-            old_mode, new_mode, old_blob, new_blob = meta[0][1:], meta[1], meta[2], meta[3]
-            old_present = old_blob != NULL_SHA and not old_mode.startswith("16")
-            new_present = new_blob != NULL_SHA and not new_mode.startswith("16")
-            if old_mode.startswith("12") or new_mode.startswith("12"):
+            modes = [meta[0][parents:], *meta[1:parents + 1]]
+            blobs = meta[parents + 1:2 * parents + 2]
+            if any(mode.startswith("12") for mode in modes):
                 continue  # symbolic links are not spec files
-            changes.append(FileChange(path if old_present else None, path if new_present else None,
-                                      old_blob if old_present else None, new_blob if new_present else None))
+            present = [blob if blob != NULL_SHA and not mode.startswith("16") else None
+                       for mode, blob in zip(modes, blobs)]
+            old_blob, new_blob = present[0], present[-1]
+            changes.append(FileChange(path if old_blob else None, path if new_blob else None, old_blob, new_blob,
+                                      tuple(present[1:-1])))
             continue
         i += 1
     if commit is not None:
@@ -165,7 +173,7 @@ class Repository:
         try:
             return self._repo.git.execute(["git", *args], **kwargs)  # type: ignore[call-overload]
         except GitCommandError as error:
-            detail = (error.stderr or "").strip().replace("stderr: ", "").strip("'\n ")
+            detail = _gist((error.stderr or "").strip().replace("stderr: ", "").strip("'\n "))
             raise GitProblem(f"git {args[0]} failed: {detail or error}") from None
 
     def head(self) -> str | None:
@@ -175,24 +183,32 @@ class Repository:
         except ValueError:
             return None
 
+    def detached(self) -> bool:
+        """Whether HEAD names a commit directly rather than a branch (a detached HEAD)."""
+        return self._repo.head.is_detached
+
     def is_shallow(self) -> bool:
         return self._run("rev-parse", "--is-shallow-repository").strip() == "true"
 
     def log(self, suffixes: tuple[str, ...] = (".yaml", ".yml"), rev: str = "HEAD") -> list[LogEntry]:
         """Every commit reachable from ``rev``, oldest first (parents before children), with the
-        files ending in ``suffixes`` each changed against its first parent. One git process."""
+        files ending in ``suffixes`` each changed against its first parent (for a merge: the files
+        whose merged content differs from every parent, ``-c``). One git process."""
         if self.head() is None:
             return []
-        raw = self._run("log", "--topo-order", "--reverse", "--no-color", "--raw", "--no-abbrev", "-z",
+        raw = self._run("log", "--topo-order", "--reverse", "--no-color", "--raw", "-c", "--no-abbrev", "-z",
                         "--no-renames", "--no-ext-diff", "--no-textconv", f"--format={_FORMAT}", rev, "--",
                         stdout_as_string=False, strip_newline_in_stdout=False)
         return _parse_log(raw, suffixes)  # type: ignore[arg-type]
 
     def read_blob(self, sha: str) -> bytes:
-        return self._repo.odb.stream(bytes.fromhex(sha)).read()
+        """One blob's bytes; :class:`GitProblem` with git's own words when the object is missing or corrupt."""
+        return self._run("cat-file", "blob", sha, stdout_as_string=False,  # type: ignore[return-value]
+                         strip_newline_in_stdout=False)
 
     def read_blobs(self, shas: list[str]) -> dict[str, bytes]:
-        """Many blobs at once through one ``git cat-file --batch``."""
+        """Many blobs at once through one ``git cat-file --batch`` (a missing or corrupt one is left out:
+        :meth:`read_blob` then says what git finds wrong with it)."""
         import tempfile
 
         if not shas:
@@ -233,12 +249,15 @@ class Repository:
         return out
 
     def blob_at(self, rev: str, path: str) -> bytes | None:
-        """The content of ``path`` in ``rev`` (``None`` when it is not there)."""
-        try:
-            commit = self._repo.commit(rev)
-            return commit.tree[path].data_stream.read()
-        except (KeyError, ValueError, git.BadName):
-            return None
+        """The content of ``path`` in ``rev`` (``None`` when it is not there; :class:`GitProblem`
+        when git cannot read the commit, its tree or the blob)."""
+        listing = self._run("ls-tree", "-z", "--full-tree", rev, "--", path, stdout_as_string=False)
+        for record in listing.split(b"\0"):  # type: ignore[union-attr]
+            meta, _, found = record.partition(b"\t")
+            parts = meta.split()
+            if found.decode("utf-8", "surrogateescape") == path and len(parts) == 3 and parts[1] == b"blob":
+                return self.read_blob(parts[2].decode())
+        return None
 
     def commit_info(self, rev: str) -> Commit:
         raw = self._run("log", "-1", "--no-color", f"--format={_FORMAT}", rev, "--",
@@ -289,11 +308,14 @@ class Repository:
         for line in listing.splitlines():
             name, kind, obj, peeled = (line.split("\0") + ["", "", ""])[:4]
             if kind == "tag":
-                tag = self._repo.tags[name].tag
-                tagged = datetime.fromtimestamp(tag.tagged_date, timezone.utc).astimezone(
-                    _offset(tag.tagger_tz_offset))
-                out.append(TagInfo(name, peeled or tag.object.hexsha, True, tag.message,
-                                   f"{tag.tagger.name} <{tag.tagger.email}>", tagged, name in reachable))
+                try:
+                    tag = self._repo.tags[name].tag
+                    tagged = datetime.fromtimestamp(tag.tagged_date, timezone.utc).astimezone(
+                        _offset(tag.tagger_tz_offset))
+                    out.append(TagInfo(name, peeled or tag.object.hexsha, True, tag.message,
+                                       f"{tag.tagger.name} <{tag.tagger.email}>", tagged, name in reachable))
+                except (ValueError, OSError, AttributeError) as error:
+                    raise GitProblem(f"git cannot read the tag {name}: {error}") from None
             else:
                 out.append(TagInfo(name, obj, False, "", None, None, name in reachable))
         return out
@@ -323,6 +345,30 @@ class Repository:
     def delete_tag(self, name: str) -> None:
         self._run("tag", "-d", "--", name)
 
+    def checkout(self, rev: str, *, new_branch: str | None = None, detach: bool = False) -> None:
+        """``git checkout`` ``rev`` (onto a new branch, or detached)."""
+        self._refuse_option(rev, new_branch or "")
+        args = ["checkout", "-q"] + (["-b", new_branch] if new_branch else []) + (["--detach"] if detach else [])
+        self._run(*args, rev, "--")
+
+    def merge(self, rev: str) -> bool:
+        """Start merging ``rev`` into HEAD without committing (``--no-ff --no-commit``): ``True`` when
+        git merged cleanly, ``False`` when it stopped on conflicts (resolve, then :meth:`commit_all`)."""
+        self._refuse_option(rev)
+        try:
+            self._run("merge", "-q", "--no-ff", "--no-commit", rev)
+        except GitProblem:
+            if (Path(self._repo.git_dir) / "MERGE_HEAD").exists():
+                return False
+            raise
+        return True
+
+    @staticmethod
+    def _refuse_option(*names: str) -> None:
+        for name in names:
+            if name.startswith("-"):
+                raise GitProblem(f"{name!r} is not a revision or branch name")
+
     def reset_hard(self, rev: str) -> None:
         self._run("reset", "-q", "--hard", rev, "--")
 
@@ -347,6 +393,17 @@ class Repository:
             args += ["--depth", str(depth)]
         self._run(*args, "--", self.root.as_uri(), str(target))
         return _configured(git.Repo(target))
+
+
+def _gist(stderr: str) -> str:
+    """What git said, in one line: its ``fatal:`` lines if any (git repeats its ``error:`` lines), else the rest.
+
+    >>> _gist("error: inflate: bad\\nerror: inflate: bad\\nfatal: loose object 1f is corrupt")
+    'fatal: loose object 1f is corrupt'
+    """
+    lines = list(dict.fromkeys(line.strip() for line in stderr.splitlines() if line.strip()))
+    fatal = [line for line in lines if line.startswith("fatal:")]
+    return "; ".join(fatal or lines)
 
 
 def _offset(seconds_west: int) -> timezone:

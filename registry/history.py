@@ -11,7 +11,17 @@ order, layout and number spelling are never changes), and decides:
 - ``amended`` (info): such a change, covered by an amendment added in the same commit;
 - ``uncommitted``: working-tree edits of locked fields against HEAD;
 - ``incomplete-history``: a shallow clone, or a first version already after the start;
-- ``date-order``: a commit dated before its parent.
+- ``date-order``: a commit dated before its parent;
+- ``future-date``: a commit dated later than now (its date proves nothing);
+- ``history-unreadable``: a version git cannot read (a missing or corrupt object);
+- ``untracked``: no version of the spec in the history at all;
+- ``deleted``: the history ends with the spec's removal.
+
+A merge commit is compared with every parent: a field whose merged value equals one
+parent's came from that parent's line of commits (already analysed there); a field whose
+merged value differs from every parent's was introduced by the merge itself (a conflict
+resolution) and is judged like any other change, an amendment counting only when the
+merge adds it (it is in no parent).
 
 A commit's date is its committer date, read as the calendar date in the offset the
 committer recorded (docs/reviewer-guide.md explains why, and the limits).
@@ -22,7 +32,7 @@ from __future__ import annotations
 import json
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
-from datetime import date, datetime
+from datetime import date, datetime, timedelta
 from typing import Any
 
 from pydantic import BaseModel
@@ -53,6 +63,9 @@ __all__ = [
     "show_change",
     "dotted_loc",
     "SPEC_KEYS",
+    "UnreadableBlob",
+    "FUTURE_TOLERANCE",
+    "verdict_of",
 ]
 
 
@@ -68,6 +81,13 @@ MISSING: Any = _Missing()
 SPEC_KEYS = frozenset({"design", "data_collection", "sample_size", "hypotheses"})
 
 _TOP_LOCKED = {name for name, is_locked in locked_paths(Spec).items() if is_locked}
+
+#: Clocks of different machines disagree by minutes; a commit is "in the future" beyond this.
+FUTURE_TOLERANCE = timedelta(minutes=10)
+
+
+class UnreadableBlob(LookupError):
+    """Raised by a store's reader when git cannot give a blob; the message says what git said."""
 
 
 def commit_day(moment: datetime) -> date:
@@ -149,6 +169,8 @@ class Snapshot:
     _validated: bool = field(default=False, repr=False)
     _peeked: dict[tuple[str, ...], str] | None = field(default=None, repr=False)
     error: str | None = None
+    #: Why git could not give this version's bytes (``None``: it could).
+    unreadable: str | None = None
 
     @classmethod
     def of(cls, blob: str, data: Any, spec: Spec | None = None, source: str | None = None) -> "Snapshot":
@@ -252,8 +274,18 @@ class SnapshotStore:
         snap = self._cache.get(blob)
         if snap is None:
             raw = self._blobs.pop(blob, None)
-            snap = self._cache[blob] = Snapshot(blob, raw if raw is not None else self._read(blob))
+            if raw is None:
+                try:
+                    raw = self._read(blob)
+                except UnreadableBlob as error:
+                    snap = self._cache[blob] = Snapshot(blob, None, None, True, unreadable=str(error))
+                    return snap
+            snap = self._cache[blob] = Snapshot(blob, raw)
         return snap
+
+    def unreadable(self) -> dict[str, str]:
+        """Blob id -> what git said, for every version asked for that git could not give."""
+        return {blob: snap.unreadable for blob, snap in self._cache.items() if snap.unreadable}
 
 
 def diff(old: Any, new: Any, path: str = "") -> list[tuple[str, Any, Any]]:
@@ -339,13 +371,21 @@ class FieldChange:
 
 @dataclass(frozen=True)
 class Event:
-    """What one commit did to one spec: its version before (``None``: not there) and after."""
+    """What one commit did to one spec: its version before (``None``: not there) and after.
+
+    For a merge, ``old_blob`` is the first parent's version and ``other_blobs`` the later parents'.
+    """
 
     commit: Commit
     old_path: str | None
     new_path: str | None
     old_blob: str | None
     new_blob: str | None
+    other_blobs: tuple[str | None, ...] = ()
+
+    @property
+    def merge(self) -> bool:
+        return len(self.commit.parents) > 1
 
 
 @dataclass(frozen=True)
@@ -353,7 +393,7 @@ class Revision:
     """One commit in a spec's history, with the field changes it made."""
 
     commit: Commit
-    action: str  # added, modified, moved, removed, re-added
+    action: str  # added, modified, moved, removed, re-added, merged
     path: str | None
     old_path: str | None
     start: date | None
@@ -389,13 +429,8 @@ class SpecHistory:
 
     @property
     def verdict(self) -> str:
-        """``drift``, ``incomplete`` (history cannot rule drift out), ``amended`` or ``clean``."""
-        kinds = {f.kind for f in self.findings}
-        if "drift" in kinds:
-            return "drift"
-        if "incomplete-history" in kinds:
-            return "incomplete"
-        return "amended" if "amended" in kinds else "clean"
+        """See :func:`verdict_of`: ``clean`` only when the history was read whole and shows nothing."""
+        return verdict_of(f.kind for f in self.findings)
 
     def summary(self) -> dict[str, Any]:
         """The verdict and provenance in a few keys (``check --json`` shows it per spec)."""
@@ -414,13 +449,35 @@ class SpecHistory:
                 "findings": [f.to_dict() for f in self.findings]}
 
 
-def spec_events(log: Iterable[LogEntry], store: SnapshotStore) -> dict[str, list[Event]]:
+#: What each finding kind makes of a spec's history, most serious first (the first present wins).
+_VERDICTS: tuple[tuple[str, str], ...] = (
+    ("drift", "drift"), ("history-unreadable", "unreadable"), ("incomplete-history", "incomplete"),
+    ("rewritten-history", "rewritten"), ("deleted", "deleted"), ("untracked", "untracked"),
+    ("future-date", "unreliable-dates"), ("date-order", "unreliable-dates"), ("amended", "amended"))
+
+
+def verdict_of(kinds: Iterable[str]) -> str:
+    """A history's verdict from its finding kinds: ``clean`` only when none of them is present.
+
+    >>> verdict_of(["amended", "future-date"])
+    'unreliable-dates'
+    >>> verdict_of([])
+    'clean'
+    """
+    present = set(kinds)
+    return next((verdict for kind, verdict in _VERDICTS if kind in present), "clean")
+
+
+def spec_events(log: Iterable[LogEntry], store: SnapshotStore,
+                known_paths: Mapping[str, str] | None = None) -> dict[str, list[Event]]:
     """Follow every spec through the log by its ``id``: per id, the commits that touched it, oldest first.
 
     Within one commit an old and a new version with the same id are paired, wherever they live,
     so a move (and a move plus an edit) is one event. A version git cannot parse keeps the id its
-    path held before.
+    path held before; a version git cannot read at all, with no earlier id at its path, takes the
+    id ``known_paths`` (path -> id, e.g. from the working tree) gives that path.
     """
+    known = known_paths or {}
     path_ids: dict[str, str] = {}
     events: dict[str, list[Event]] = {}
     for entry in log:
@@ -428,14 +485,20 @@ def spec_events(log: Iterable[LogEntry], store: SnapshotStore) -> dict[str, list
             continue
         olds: dict[str, list[tuple[str, str]]] = {}
         news: dict[str, list[tuple[str, str]]] = {}
+        others = {c.new_path or c.old_path: c.other_blobs for c in entry.changes if c.other_blobs}
         for change in entry.changes:
             if change.old_path and change.old_blob:
-                spec_id = store.get(change.old_blob).id or path_ids.get(change.old_path)
+                snap = store.get(change.old_blob)
+                spec_id = snap.id or path_ids.get(change.old_path) or \
+                    (known.get(change.old_path) if snap.unreadable else None)
                 if spec_id:
                     olds.setdefault(spec_id, []).append((change.old_path, change.old_blob))
             if change.new_path and change.new_blob:
                 snap = store.get(change.new_blob)
-                spec_id = snap.id or (path_ids.get(change.new_path) if snap.data is None else None)
+                spec_id = snap.id or (path_ids.get(change.new_path) if snap.data is None else None) or \
+                    (known.get(change.new_path) if snap.unreadable else None)
+                if not spec_id and change.other_blobs:  # a merge: the id the other parents' versions hold
+                    spec_id = next((store.get(b).id for b in change.other_blobs if b and store.get(b).id), None)
                 if spec_id:
                     news.setdefault(spec_id, []).append((change.new_path, change.new_blob))
         for change in entry.changes:
@@ -456,9 +519,10 @@ def spec_events(log: Iterable[LogEntry], store: SnapshotStore) -> dict[str, list
             for old, new in pairs:
                 if new:
                     path_ids[new[0]] = spec_id
+                path = new[0] if new else old[0] if old else None
                 events.setdefault(spec_id, []).append(Event(
                     entry.commit, old[0] if old else None, new[0] if new else None,
-                    old[1] if old else None, new[1] if new else None))
+                    old[1] if old else None, new[1] if new else None, others.get(path, ())))
     return events
 
 
@@ -468,40 +532,58 @@ def _short_date(moment: datetime) -> str:
 
 def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
             extra_locked: Sequence[str] = (), shallow: bool = False, detail: bool = False,
-            commit_dates: Mapping[str, datetime] | None = None) -> SpecHistory:
+            commit_dates: Mapping[str, datetime] | None = None, now: datetime | None = None) -> SpecHistory:
     """The field-level history of one spec and its drift findings.
 
     ``detail`` compares every version (for the changelog); otherwise only commits on or after
     the start are compared, since only they can drift. ``commit_dates`` (sha -> committer date,
-    every commit) lets a commit dated before its parent be flagged.
+    every commit) lets a commit dated before its parent be flagged; ``now`` (timezone-aware)
+    one dated in the future.
     """
     history = SpecHistory(spec_id, shallow=shallow)
     previous: Snapshot | None = None
     started: date | None = None
+    reported: set[str] = set()  # unreadable blobs already named
+    if not events:
+        history.findings.append(Finding(
+            "untracked", "warning", "", None,
+            "no version of this spec is in the git history: it has never been committed, so the history cannot "
+            "vouch for its design; commit it (before data collection starts)"))
     for index, event in enumerate(events):
         commit = event.commit
         old = store.get(event.old_blob) if event.old_blob else None
         new = store.get(event.new_blob) if event.new_blob else None
-        base = old or previous
-        start = (base.start if base is not None else None) or (new.start if new is not None else None)
+        others = [store.get(blob) for blob in event.other_blobs if blob]
+        parents = [snap for snap in (old, *others) if snap is not None]  # the versions this commit started from
+        base = parents[0] if parents else previous
+        start = next((s.start for s in (base, new) if s is not None and s.start is not None), None)
         day = commit_day(commit.committer_date)
         if started is None and start is not None and day >= start:
             started = start
         after = started is not None
-        if old is None and new is not None:
+        if not parents and new is not None:
             action = "added" if previous is None else "re-added"
         elif new is None:
             action = "removed"
+        elif event.merge:
+            action = "merged"
         else:
             action = "moved" if event.old_path != event.new_path else "modified"
+        unreadable = [s for s in (*parents, new) if s is not None and s.unreadable]
+        for snap in unreadable:
+            if snap.blob not in reported:
+                reported.add(snap.blob)
+                history.findings.append(_unreadable_finding(snap, event))
         changes: list[FieldChange] = []
-        compared = base is not None and new is not None and (after or detail)
+        compared = base is not None and new is not None and (after or detail) and not unreadable \
+            and not (base is not None and base.unreadable)
         if compared:
             assert base is not None and new is not None
-            changes = _changes(base, new, extra_locked, after, free=detail)
+            changes = _changes(base, new, extra_locked, after, free=detail,
+                               others=parents[1:] if event.merge else ())
             for change in changes:
                 if change.locked and after:
-                    history.findings.append(_drift_finding(change, commit, started))
+                    history.findings.append(_drift_finding(change, commit, started, merge=event.merge))
         if index == 0 and action == "added" and after and not shallow:
             history.findings.append(Finding(
                 "incomplete-history", "warning", "data_collection.start", None,
@@ -510,6 +592,12 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
                 "history, so drift cannot be ruled out"))
         if commit_dates is not None:
             history.findings += _date_order(commit, commit_dates)
+        if now is not None and commit.committer_date > now + FUTURE_TOLERANCE:
+            history.findings.append(Finding(
+                "future-date", "warning", "", None,
+                f"commit {commit.short} is dated {_short_date(commit.committer_date)}, later than now "
+                f"({_short_date(now)}); its date was set by hand or by a wrong clock, so it is no evidence of when "
+                "the change was made, and never that it came before the start of data collection"))
         history.revisions.append(Revision(commit, action, event.new_path, event.old_path, start, after,
                                           tuple(changes), compared))
         previous = new or old
@@ -519,6 +607,13 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
             history.last_path = event.old_path
     history.start = previous.start if previous is not None else None
     history.started_on = started
+    if history.revisions and history.revisions[-1].action == "removed":
+        gone = history.revisions[-1]
+        history.findings.append(Finding(
+            "deleted", "warning", "", None,
+            f"spec {spec_id!r} was deleted in commit {gone.commit.short} on {_short_date(gone.commit.committer_date)} "
+            f"by {gone.commit.author}; its last version was {gone.old_path}. A registered experiment should be "
+            "withdrawn (status: withdrawn), not deleted, so its record stays"))
     if shallow and history.revisions:
         first = history.revisions[0].commit
         history.findings.append(Finding(
@@ -529,10 +624,23 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
     return history
 
 
+def _unreadable_finding(snap: Snapshot, event: Event) -> Finding:
+    path = event.new_path or event.old_path
+    return Finding(
+        "history-unreadable", "error", "", None,
+        f"the version of {path} in commit {event.commit.short} ({_short_date(event.commit.committer_date)}), blob "
+        f"{snap.blob[:10]}, cannot be read: {snap.unreadable}; it could not be compared with the versions around "
+        "it, so drift cannot be ruled out. Run 'git fsck' and restore the missing objects from another clone")
+
+
 def _changes(base: Snapshot, new: Snapshot, extra_locked: Sequence[str], after: bool,
-             free: bool = True) -> list[FieldChange]:
+             free: bool = True, others: Sequence[Snapshot] = ()) -> list[FieldChange]:
+    """The fields ``new`` changed from ``base``; with ``others`` (a merge's later parents), only the
+    fields whose new value differs from every parent's, an amendment counting when no parent holds it."""
     if base.raw is not None and base.raw == new.raw:
         return []
+    if any(other.raw is not None and other.raw == new.raw for other in others):
+        return []  # the merge took one parent's version whole
     if free:
         locked_old, full_old = base.views(extra_locked)
         locked_new, full_new = new.views(extra_locked)
@@ -540,12 +648,22 @@ def _changes(base: Snapshot, new: Snapshot, extra_locked: Sequence[str], after: 
         locked_old, locked_new = base.locked(extra_locked), new.locked(extra_locked)
         full_old = full_new = {}
     before_keys = {json.dumps(a, sort_keys=True, default=str) for a in base.amendments()}
+    for other in others:
+        before_keys |= {json.dumps(a, sort_keys=True, default=str) for a in other.amendments()}
     added = [a for a in new.amendments() if json.dumps(a, sort_keys=True, default=str) not in before_keys]
+    other_views = [other.views(extra_locked) for other in others]
+
+    def from_a_parent(path: str, new_value: Any, which: int) -> bool:
+        loc = dotted_loc(path)
+        return any(not diff(_get(view[which], loc), new_value) for view in other_views)
+
     out: list[FieldChange] = []
     locked_fields: list[str] = []
     for path, old_value, new_value in diff(locked_old, locked_new):
         if path == "id":
             continue  # identity: a changed id is a new spec
+        if from_a_parent(path, new_value, 0):
+            continue
         amendment = _covering(added, path)
         out.append(FieldChange(path, old_value, new_value, True, after, amendment))
         locked_fields.append(path)
@@ -553,6 +671,8 @@ def _changes(base: Snapshot, new: Snapshot, extra_locked: Sequence[str], after: 
         if any(path == p or covers(p, path) or covers(path, p) for p in locked_fields):
             continue
         if _get(locked_new, dotted_loc(path)) is not MISSING or _get(locked_old, dotted_loc(path)) is not MISSING:
+            continue
+        if from_a_parent(path, new_value, 1):
             continue
         out.append(FieldChange(path, old_value, new_value, False, after, None))
     return out
@@ -566,8 +686,10 @@ def _covering(added: list[dict[str, Any]], path: str) -> dict[str, Any] | None:
     return None
 
 
-def _drift_finding(change: FieldChange, commit: Commit, started: date | None) -> Finding:
-    what = (f"{change.field} changed {show_change(change.old, change.new)} in commit {commit.short} on "
+def _drift_finding(change: FieldChange, commit: Commit, started: date | None, *, merge: bool = False) -> Finding:
+    where = (f"merge commit {commit.short} (the merged value is in none of its parents)" if merge
+             else f"commit {commit.short}")
+    what = (f"{change.field} changed {show_change(change.old, change.new)} in {where} on "
             f"{_short_date(commit.committer_date)} by {commit.author}, after data collection started ({started})")
     if change.amendment is not None:
         reason = str(change.amendment.get("reason", "")).strip()
@@ -594,19 +716,23 @@ def _date_order(commit: Commit, commit_dates: Mapping[str, datetime]) -> list[Fi
 
 def uncommitted_findings(head: Snapshot | None, work: Snapshot, today: date, *,
                          extra_locked: Sequence[str] = (), started_on: date | None = None) -> list[Finding]:
-    """Locked fields whose working-tree value differs from HEAD's (``head`` ``None``: never committed).
+    """Locked fields whose working-tree value differs from HEAD's (``head`` ``None``: not in HEAD,
+    reported as ``untracked``; a HEAD version git cannot read gives nothing here, the history's
+    ``history-unreadable`` finding says it).
 
     An error once data collection has started (unless an amendment added in the working tree
     covers the change: then a warning to commit them together), a warning before.
     """
+    if head is not None and head.unreadable:
+        return []
     start = started_on or (head.start if head is not None else None) or work.start
     after = start is not None and today >= start
     if head is None:
         if after:
-            return [Finding("uncommitted", "error", "", None,
+            return [Finding("untracked", "error", "", None,
                             f"this spec is not committed, and data collection started on {start}: the registry "
                             "has no record of the design before the start; commit it and explain the delay")]
-        return [Finding("uncommitted", "warning", "", None,
+        return [Finding("untracked", "warning", "", None,
                         "this spec is not committed yet; commit it before data collection starts"
                         + (f" ({start})" if start else ""))]
     out = []

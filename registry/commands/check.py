@@ -42,7 +42,7 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
     config_for = config_loader(config_errors, oversize_margin)
     reports: list[SpecReport] = check_files(files, config_for)
     status = add_history(reports, files, paths, config_for) if history else None
-    failed = any(r.has_errors for r in reports) or bool(config_errors)
+    failed = any(r.has_errors for r in reports) or bool(config_errors) or bool(status and status.problems)
     if as_json:
         extra: dict[str, object] = {"config_errors": config_errors} if config_errors else {}
         extra["history"] = status.to_dict() if status else {"checked": False, "message": "skipped (--no-history)"}
@@ -59,7 +59,7 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
     out.print()
     out.print(summary_line(reports))
     for problem in status.problems if status else ():
-        out.print(f"History not checked for {problem}")
+        out.print(f"History problem: {problem}")
     if status is not None and status.message():
         out.print(status.message())
     out.print(f"Note: {CAUTION}")

@@ -4,11 +4,14 @@ from __future__ import annotations
 
 import argparse
 import json
+import sys
+from pathlib import Path
 
 from rich.table import Table
 from rich.text import Text
 
 from ..audit import find_spec, read_history, registrations
+from ..audit import spec_history as audit_spec_history
 from ..checks import CAUTION
 from ..config import find_config, load_config
 from ..discovery import UsageError
@@ -19,7 +22,8 @@ from ..report import console
 
 __all__ = ["history", "HELP", "add_arguments", "run"]
 
-HELP = "show a spec's field-level changelog from git (exit 1 when a locked field drifted)"
+HELP = ("show a spec's field-level changelog from git (exit 1 when a locked field drifted, or when git "
+        "holds no readable history of it)")
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -39,30 +43,50 @@ def _locked_extra(spec_file) -> list[str]:
         return []
 
 
+#: History verdicts that make ``prespec history`` exit 1: drift, or a history that cannot vouch at all.
+FAILING = ("drift", "unreadable", "untracked")
+
+
 def history(target: str, paths: list[str], *, as_json: bool = False) -> int:
-    spec_file, report = find_spec(target, paths)
-    if report.id is None:
-        raise UsageError(f"{report.path}: no valid spec id; run 'prespec check {report.path}'")
-    repo = find_repository(spec_file.path.absolute())
-    if repo is None:
-        raise UsageError(f"{report.path} is not inside a git repository, so it has no history")
+    """Print one spec's changelog; 0 when it shows no drift, 1 on drift or when git cannot give a history
+    for it (never committed, or versions git cannot read)."""
     try:
-        registry = read_history(repo)
+        spec_file, report = find_spec(target, paths)
+    except UsageError:
+        spec_file = report = None  # not in the working tree: a deleted spec still has its history
+        where = Path(paths[0]).absolute()
+    if report is not None and report.id is None:
+        raise UsageError(f"{report.path}: no valid spec id; run 'prespec check {report.path}'")
+    if spec_file is not None:
+        where = spec_file.path.absolute()
+    repo = find_repository(where)
+    if repo is None:
+        raise UsageError(f"{report.path if report else where} is not inside a git repository, so it has no history")
+    spec_id = report.id if report is not None and report.id else target
+    relpath = repo.relpath(spec_file.path) if spec_file is not None else None
+    try:
+        registry = read_history(repo, {relpath: spec_id} if relpath else None)
+        tags = registrations(repo, spec_id)
+        spec_history = audit_spec_history(registry, spec_id, _locked_extra(spec_file) if spec_file else [],
+                                          detail=True, tags=[r.tag for r in tags])
     except GitProblem as error:
-        raise UsageError(str(error)) from None
-    spec_history = registry.history(report.id, _locked_extra(spec_file), detail=True)
-    tags = registrations(repo, report.id)
-    drifted = spec_history.verdict == "drift"
+        print(f"prespec history: the git history of {repo.root} cannot be read: {error}", file=sys.stderr)
+        print(f"Verdict: unreadable (run 'git fsck' in {repo.root})", file=sys.stderr)
+        return 1
+    if spec_file is None and not spec_history.revisions:
+        raise UsageError(f"no spec with id {target!r} under {', '.join(paths)} and none in the git history of "
+                         f"{repo.root} (give the id of a spec, or a spec file)")
+    failed = spec_history.verdict in FAILING
     if as_json:
         payload = spec_history.to_dict()
         payload["registrations"] = [{"tag": r.tag.name, "commit": r.tag.commit, "reachable": r.tag.reachable,
                                      **r.fields} for r in tags]
         payload["caution"] = CAUTION
         print(json.dumps(payload, indent=2, ensure_ascii=False, default=str))
-        return 1 if drifted else 0
+        return 1 if failed else 0
     _print(spec_history, [f"{r.tag.name} -> {r.tag.commit[:10]}" + ("" if r.tag.reachable else " (unreachable)")
                           for r in tags])
-    return 1 if drifted else 0
+    return 1 if failed else 0
 
 
 def _print(spec_history: SpecHistory, tags: list[str]) -> None:
@@ -90,7 +114,7 @@ def _print(spec_history: SpecHistory, tags: list[str]) -> None:
             else:
                 status = Text("DRIFT", style="bold red")
             table.add_row(*common, change.field, show_change(change.old, change.new), when, status)
-    out.print(f"History of {spec_history.id} (data collection starts {spec_history.start}; "
+    out.print(f"History of {spec_history.id} (data collection starts {spec_history.start or 'unknown'}; "
               f"{len(spec_history.revisions)} commit(s)):")
     out.print(table)
     for finding in spec_history.findings:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import json
 from dataclasses import dataclass
-from datetime import date
+from datetime import date, datetime, timezone
 from pathlib import Path
 
 from ..audit import find_spec, read_history, registrations
@@ -14,7 +14,7 @@ from ..checks import CAUTION
 from ..config import find_config, load_config
 from ..discovery import UsageError
 from ..git import GitProblem, Repository, find_repository
-from ..history import commit_day, show_change
+from ..history import FUTURE_TOLERANCE, commit_day, show_change
 from ..problems import InvalidSpec
 from ..report import console
 from ..validation import validate_document
@@ -42,7 +42,7 @@ class _Check:
     detail: str
 
 
-def _repository(target: str, paths: list[str]) -> tuple[Repository, str, list[str]]:
+def _repository(target: str, paths: list[str]) -> tuple[Repository, str, list[str], dict[str, str]]:
     try:
         spec_file, report = find_spec(target, paths)
     except UsageError:
@@ -53,17 +53,24 @@ def _repository(target: str, paths: list[str]) -> tuple[Repository, str, list[st
     if repo is None:
         raise UsageError(f"{where} is not inside a git repository; registrations are git tags")
     extra: list[str] = []
+    spec_id = report.id if report and report.id else target
+    known: dict[str, str] = {}
     if spec_file is not None:
         try:
             extra = load_config(find_config(spec_file.root)).locked_fields
         except InvalidSpec:
             pass
-    return repo, (report.id if report and report.id else target), extra
+        relpath = repo.relpath(spec_file.path)
+        known = {relpath: spec_id} if relpath else {}
+    return repo, spec_id, extra, known
 
 
-def verify(target: str, paths: list[str], *, as_json: bool = False) -> int:
-    repo, spec_id, extra = _repository(target, paths)
-    checks = _verify(repo, spec_id, extra)
+def verify(target: str, paths: list[str], *, as_json: bool = False, now: datetime | None = None) -> int:
+    repo, spec_id, extra, known = _repository(target, paths)
+    try:
+        checks = _verify(repo, spec_id, extra, known, now or datetime.now(timezone.utc))
+    except GitProblem as error:
+        checks = [_Check("registration tag", False, f"git in {repo.root} cannot read the tags: {error}")]
     ok = all(c.ok for c in checks)
     if as_json:
         print(json.dumps({"id": spec_id, "verified": ok, "checks": [c.__dict__ for c in checks],
@@ -77,7 +84,7 @@ def verify(target: str, paths: list[str], *, as_json: bool = False) -> int:
     return 0 if ok else 1
 
 
-def _verify(repo: Repository, spec_id: str, extra: list[str]) -> list[_Check]:
+def _verify(repo: Repository, spec_id: str, extra: list[str], known: dict[str, str], now: datetime) -> list[_Check]:
     regs = registrations(repo, spec_id)
     if not regs:
         return [_Check("registration tag", False, f"no tag prespec/{spec_id}/vN in this repository (fetch the "
@@ -98,15 +105,31 @@ def _verify(repo: Repository, spec_id: str, extra: list[str]) -> list[_Check]:
     try:
         start = date.fromisoformat(fields["start"])
         commit = repo.commit_info(tag.commit)
+        parents = [repo.commit_info(parent) for parent in commit.parents]
     except (ValueError, GitProblem) as error:
         return checks + [_Check("before the start", False, f"cannot read the start or the commit: {error}")]
     before = commit_day(commit.committer_date) < start and (
         tag.tagged_date is None or commit_day(tag.tagged_date) < start)
-    checks.append(_Check("before the start", before,
+    # a date set in the future, or before the parent's, is no evidence that anything came before the start
+    doubts = []
+    if commit.committer_date > now + FUTURE_TOLERANCE:
+        doubts.append(f"the commit is dated after now ({now.isoformat(timespec='minutes')})")
+    if tag.tagged_date is not None and tag.tagged_date > now + FUTURE_TOLERANCE:
+        doubts.append(f"the tag is dated after now ({now.isoformat(timespec='minutes')})")
+    doubts += [f"the commit is dated before its parent {p.short} ({p.committer_date.isoformat(timespec='minutes')})"
+               for p in parents if commit.committer_date < p.committer_date]
+    if tag.tagged_date is not None and tag.tagged_date + FUTURE_TOLERANCE < commit.committer_date:
+        doubts.append("the tag is dated before the commit it points at")
+    checks.append(_Check("before the start", before and not doubts,
                          f"commit dated {commit.committer_date.isoformat(timespec='minutes')}, tag dated "
                          f"{tag.tagged_date.isoformat(timespec='minutes') if tag.tagged_date else '-'}, "
-                         f"start {start}"))
-    raw = repo.blob_at(tag.commit, fields["path"])
+                         f"start {start}" + ("; but " + "; ".join(doubts) + ": these dates were set by hand or by "
+                                             "a wrong clock and prove nothing" if doubts else "")))
+    try:
+        raw = repo.blob_at(tag.commit, fields["path"])
+    except GitProblem as error:
+        return checks + [_Check("content hash", False, f"{fields['path']} at {tag.commit[:10]} cannot be read: "
+                                f"{error}"), _after_registration(repo, spec_id, tag.commit, extra, known, now)]
     digest = None
     if raw is not None:
         try:
@@ -121,16 +144,18 @@ def _verify(repo: Repository, spec_id: str, extra: list[str]) -> list[_Check]:
                          f"sha256 {fields['content-sha256'][:16]}... recorded; "
                          + ("matches" if digest == fields["content-sha256"] else
                             f"{fields['path']} at the tag gives {digest[:16] + '...' if digest else 'nothing (missing)'}")))
-    checks.append(_after_registration(repo, spec_id, tag.commit, extra))
+    checks.append(_after_registration(repo, spec_id, tag.commit, extra, known, now))
     return checks
 
 
-def _after_registration(repo: Repository, spec_id: str, registered: str, extra: list[str]) -> _Check:
+def _after_registration(repo: Repository, spec_id: str, registered: str, extra: list[str],
+                        known_paths: dict[str, str], now: datetime) -> _Check:
     try:
-        registry = read_history(repo)
+        registry = read_history(repo, known_paths)
+        registry.now = now
         known = repo.ancestors(registered)
     except GitProblem as error:
-        return _Check("no unamended change since", False, str(error))
+        return _Check("no unamended change since", False, f"the git history of {repo.root} cannot be read: {error}")
     history = registry.history(spec_id, extra, detail=True)
     problems = []
     if registry.shallow:
@@ -145,7 +170,7 @@ def _after_registration(repo: Repository, spec_id: str, registered: str, extra: 
                 problems.append(f"{change.field} {show_change(change.old, change.new)} in "
                                 f"{revision.commit.short} ({revision.commit.committer_date.date()})")
     for finding in history.findings:
-        if finding.kind in ("drift", "incomplete-history") and finding.message not in problems:
+        if finding.kind in ("drift", "incomplete-history", "history-unreadable") and finding.message not in problems:
             if finding.kind == "incomplete-history" and registry.shallow:
                 continue
             problems.append(finding.message)

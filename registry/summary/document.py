@@ -25,7 +25,8 @@ __all__ = ["HISTORY_KINDS", "drift_verdict", "summary_markdown", "index_markdown
            "figure_alt"]
 
 #: Finding kinds that come from reading the spec's git history, most serious first.
-HISTORY_KINDS: tuple[str, ...] = ("drift", "incomplete-history", "uncommitted", "amended")
+HISTORY_KINDS: tuple[str, ...] = ("drift", "history-unreadable", "incomplete-history", "untracked", "uncommitted",
+                                  "rewritten-history", "deleted", "future-date", "date-order", "amended")
 NOT_CHECKED = "history not checked"
 
 #: Effect fields measured in the primary outcome's unit.
