@@ -79,7 +79,6 @@ class SpecReport:
     sample: SampleSize | None = None
     at_planned: PowerAtN | None = None
     simulated: SimulatedPower | None = None
-    problems_text: str = ""
     history: Any = None  # registry.history.SpecHistory when the file is in a git repository
     #: The file's lines (printable) when it could not be loaded, so output can still show them.
     source_lines: list[str] = field(default_factory=list)
@@ -150,7 +149,6 @@ def _invalid(report: SpecReport, error: InvalidSpec) -> None:
     for problem in error.problems:
         report.findings.append(Finding("invalid", "error", problem.field, problem.line, problem.message,
                                        problem.column))
-    report.problems_text = str(error)
     if report.document is None:
         report.source_lines = [printable(line) for line in error.source_lines]
 

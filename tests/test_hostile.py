@@ -94,7 +94,7 @@ def test_committed_case_gets_its_error(name):
     report = check_file(_spec(SPECS / name))
     _assert_reported(report, MANIFEST[name])
     assert report.spec is None
-    assert "Traceback" not in report.problems_text
+    assert not any("Traceback" in f.message for f in report.findings)
 
 
 def test_committed_case_location_points_at_the_named_line():
