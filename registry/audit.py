@@ -23,8 +23,8 @@ from .history import Event, Snapshot, SnapshotStore, SpecHistory, UnreadableBlob
     spec_events, uncommitted_findings
 from .registration import InvalidRegistration, parse_block, tag_version
 
-__all__ = ["RegistryHistory", "read_history", "add_history", "HistoryStatus", "find_spec", "Provenance",
-           "provenance", "registrations", "Registration", "worktree_snapshot", "spec_history"]
+__all__ = ["RegistryHistory", "read_history", "add_history", "HistoryStatus", "find_spec",
+           "registrations", "Registration", "worktree_snapshot", "spec_history"]
 
 
 @dataclass(frozen=True)
@@ -305,62 +305,3 @@ def find_spec(target: str, paths: Sequence[str] = (".",),
     if len(matches) > 1:
         raise UsageError(f"id {target!r} is used by {', '.join(r.path for _, r in matches)}; ids must be unique")
     return matches[0]
-
-
-@dataclass(frozen=True)
-class Provenance:
-    """Where a spec stands in git, for summaries: verdict, last commit and registration."""
-
-    id: str
-    verdict: str  # a history verdict (registry.history.verdict_of), uncommitted, no-repository
-    repository: str | None = None
-    head: str | None = None
-    last_commit: str | None = None
-    last_commit_date: datetime | None = None
-    last_author: str | None = None
-    registration_tag: str | None = None
-    registration_commit: str | None = None
-    registration_matches_head: bool | None = None
-    findings: tuple[Finding, ...] = ()
-
-    def to_dict(self) -> dict[str, Any]:
-        out = dataclasses.asdict(self)
-        out["last_commit_date"] = self.last_commit_date.isoformat() if self.last_commit_date else None
-        out["findings"] = [f.to_dict() for f in self.findings]
-        return out
-
-
-def provenance(spec_file: SpecFile, report: SpecReport, extra_locked: Sequence[str] = (),
-               today: date | None = None) -> Provenance:
-    """The drift verdict and provenance of one checked spec (never raises for git trouble)."""
-    spec_id = report.id or ""
-    repo = find_repository(spec_file.path.absolute())
-    if repo is None or not spec_id:
-        return Provenance(spec_id, "no-repository")
-    try:
-        registry = read_history(repo)
-        history = registry.history(spec_id, extra_locked)
-        found = list(history.findings)
-        work = worktree_snapshot(report)
-        if work is not None:
-            found += uncommitted_findings(registry.head_snapshot(spec_id), work, today or date.today(),
-                                          extra_locked=extra_locked, started_on=history.started_on)
-        regs = [r for r in registrations(repo, spec_id) if r.fields]
-    except GitProblem as error:
-        return Provenance(spec_id, "unreadable", str(repo.root), findings=(Finding(
-            "history-unreadable", "error", "", None, f"the git history of {repo.root} cannot be read ({error})"),))
-    verdict = history.verdict
-    if verdict in ("clean", "amended") and any(f.kind in ("uncommitted", "untracked") for f in found):
-        verdict = "uncommitted"
-    last = history.last
-    latest = regs[-1] if regs else None
-    matches = None
-    if latest is not None and registry.head_snapshot(spec_id) is not None:
-        from .canonical import content_hash
-
-        spec = registry.head_snapshot(spec_id).spec  # type: ignore[union-attr]
-        matches = spec is not None and content_hash(spec) == latest.fields.get("content-sha256")
-    return Provenance(spec_id, verdict, str(repo.root), registry.head, last.sha if last else None,
-                      last.committer_date if last else None, last.author if last else None,
-                      latest.tag.name if latest else None, latest.tag.commit if latest else None, matches,
-                      tuple(found))
