@@ -1,6 +1,6 @@
 """Ties git (registry/git.py) to the drift analysis (registry/history.py) for the commands.
 
-``check`` calls :func:`add_history`; ``history``, ``freeze`` and ``verify`` use
+``check`` calls :func:`add_history`; ``history``, ``register`` and ``verify`` use
 :func:`read_history` and :func:`find_spec`; a summary renderer can call
 :func:`provenance` for a spec's drift verdict, last commit and registration tag.
 """
