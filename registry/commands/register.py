@@ -202,6 +202,11 @@ def _tokens(text: bytes, authorities: list[str], reply_file: str | None, timeout
                        accept_reply(data, text, None, source=reply_file)))
     for url in authorities:
         tokens.append((url, ask_authority(url, make_request(text), text, timeout=timeout)))
+    for source, reply in tokens:
+        check = check_token(reply, text, start, [])
+        if not check.before_start or check.time is None:
+            raise TimestampError(f"the token from {source} is dated {check.to_dict()['time']}, not before the start "
+                                 f"of data collection ({start}): it cannot show that the design came first")
     if trust and tokens:
         try:
             anchors = load_trust(trust)
