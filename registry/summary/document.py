@@ -26,7 +26,8 @@ __all__ = ["HISTORY_KINDS", "drift_verdict", "summary_markdown", "index_markdown
 
 #: Finding kinds that come from reading the spec's git history, most serious first.
 HISTORY_KINDS: tuple[str, ...] = ("drift", "history-unreadable", "incomplete-history", "untracked", "uncommitted",
-                                  "rewritten-history", "deleted", "future-date", "date-order", "amended")
+                                  "rewritten-history", "deleted", "disclosed-deviation", "future-date", "date-order",
+                                  "amended")
 NOT_CHECKED = "history not checked"
 
 #: Effect fields measured in the primary outcome's unit.
