@@ -8,8 +8,8 @@ reading; the reply travels in the registration tag's message (see
 anchors the reviewer chooses. All ASN.1 and CMS work is done by ``rfc3161-client`` and
 ``cryptography``; this module writes no DER itself.
 
->>> statement("fibre-butyrate", 1, "9f" * 32, "ab" * 20)[:60]
-b'{"commit":"abababababababababababababababababababab","content'
+>>> statement("fibre-butyrate", 1, "9f2c", "ab12")
+b'{"commit":"ab12","content-sha256":"9f2c","id":"fibre-butyrate","statement":"prespec registration","version":1}'
 >>> len(statement_digest(statement("a", 1, "0" * 64, "c" * 40)))
 32
 """

@@ -307,3 +307,21 @@ def test_an_altered_signed_tag_fails(ssh_lab, run):
     result = run("verify", "mouse-diet", lab.registry, "--allowed-signers", allowed, "--json").json()
     assert result["holds"] is False and result["signature"]["verified"] is False
     assert any(p.startswith("signature:") for p in result["problems"])
+
+
+def test_a_trust_file_that_is_no_certificate_is_a_usage_error(lab, tsa, run, tmp_path):
+    assert run("register", "mouse-diet", lab.registry, "--tsa", tsa.url).status == 0
+    bogus = tmp_path / "bogus.pem"
+    bogus.write_text("not a certificate\n", encoding="utf-8")
+    result = run("verify", "mouse-diet", lab.registry, "--trust", bogus)
+    assert result.status == 2 and "holds no PEM certificate" in result.err
+    missing = run("verify", "mouse-diet", lab.registry, "--trust", tmp_path / "absent.pem")
+    assert missing.status == 2 and "cannot be read" in missing.err
+
+
+def test_a_trust_file_outside_the_registry_is_refused(lab, tsa, run, tmp_path):
+    (lab.root / ".prespec.yaml").write_text(f"timestamp:\n  authorities: [{tsa.url}]\n  trust: [../outside.pem]\n",
+                                            encoding="utf-8")
+    lab.commit("settings", "2020-01-10T11:00:00+01:00")
+    result = run("register", "mouse-diet", lab.registry)
+    assert result.status == 1 and "outside the registry folder" in result.err

@@ -174,6 +174,8 @@ def _anchors(trust: list[str], config_path: Path | None) -> tuple[list[Any], str
     try:
         return load_trust(paths), source, None
     except InvalidTrust as error:
+        if trust:  # the reviewer's own file: a usage mistake
+            raise UsageError(f"--trust: {error}") from None
         return [], "", str(error)
 
 
