@@ -181,6 +181,9 @@ def _anchors(trust: list[str], config_path: Path | None) -> tuple[list[Any], str
 
 def _evidence(outcome: _Outcome, holds: bool) -> str:
     """The one sentence the human output leads with: which evidence there is and how strong it is."""
+    if outcome.registration is None:
+        return ("Not registered: no registration tag records this spec, so nothing shows its design was fixed "
+                "before data collection started.")
     parts = []
     ts, sig = outcome.timestamp, outcome.signature
     if ts and ts["verified"] and ts["before_start"]:
