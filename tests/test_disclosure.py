@@ -97,3 +97,13 @@ def test_a_disclosed_deviation_after_registration_in_verify(tmp_path, run):
     assert out["holds"] is True and out["deviations"] and "sample_size" in out["deviations"][0]
     human = run("verify", "mouse-diet", lab.registry)
     assert "disclosed deviation" in human.out
+
+
+def test_the_summary_shows_the_disclosed_deviation(drifted, run, tmp_path):
+    lab, sha = drifted
+    lab.write("mouse-diet.yaml", spec_text(**CHANGE, amendments=_amendment(sha[:10])))
+    lab.commit("disclose the analysis change", DISCLOSED)
+    assert run("render", "mouse-diet", "--registry", lab.registry, "--out", tmp_path / "out").status == 0
+    page = (tmp_path / "out" / "mouse-diet.md").read_text(encoding="utf-8")
+    assert "disclosed-deviation" in page and "disclosed 14 day(s) later" in page
+    assert "no amendment entry covering it" not in page

@@ -35,6 +35,13 @@ def authority():
     return make_authority()
 
 
+@pytest.fixture(autouse=True)
+def _local_only(monkeypatch):
+    # the test authority is on 127.0.0.1: never route it through a proxy the environment names
+    monkeypatch.setenv("no_proxy", "127.0.0.1,localhost")
+    monkeypatch.setenv("NO_PROXY", "127.0.0.1,localhost")
+
+
 @pytest.fixture
 def tsa(authority):
     server = Server(authority).start()
