@@ -47,7 +47,8 @@ def test_drift_says_how_to_disclose_it(drifted, run):
 @pytest.mark.parametrize("by", ["commit", "date"])
 def test_a_later_amendment_discloses_the_change(drifted, run, by):
     lab, sha = drifted
-    lab.write("mouse-diet.yaml", spec_text(**CHANGE, amendments=_amendment(sha[:8] if by == "commit" else "2020-04-06")))
+    named = sha[:8] if by == "commit" else "2020-04-06"  # the change's commit, or its committer date
+    lab.write("mouse-diet.yaml", spec_text(**CHANGE, amendments=_amendment(named)))
     lab.commit("disclose the analysis change", DISCLOSED)
     result = run("check", "--json", lab.registry)
     assert result.status == 0, result.out

@@ -86,7 +86,8 @@ def reply_for(request_der: bytes, authority: Authority, when: datetime, serial: 
     attrs = cms.CMSAttributes([
         cms.CMSAttribute({"type": "content_type", "values": ["tst_info"]}),
         cms.CMSAttribute({"type": "message_digest", "values": [hashlib.sha256(content).digest()]}),
-        cms.CMSAttribute({"type": "signing_time", "values": [cms.Time({"utc_time" if when.year < 2050 else "generalized_time": when.astimezone(timezone.utc)})]}),
+        cms.CMSAttribute({"type": "signing_time", "values": [cms.Time(  # UTCTime only up to 2049 (RFC 5280 4.1.2.5)
+            {"utc_time" if when.year < 2050 else "generalized_time": when.astimezone(timezone.utc)})]}),
         cms.CMSAttribute({"type": "signing_certificate_v2", "values": [tsp.SigningCertificateV2({
             "certs": [tsp.ESSCertIDv2({"hash_algorithm": {"algorithm": "sha256"},
                                        "cert_hash": hashlib.sha256(cert_der).digest()})]})]}),

@@ -525,9 +525,10 @@ def _provenance(prov: Provenance) -> str:
          "not registered: there is no registration to verify"),
     ]
     if not prov.freeze_tags:
+        register = prov.verify_command.replace("prespec verify", "prespec register", 1)
         return (md.table(["Record", "Value"], rows) + "\n\n"
                 "This spec is not registered: no registration tag records it, so nothing shows that this design "
-                f"was fixed before data collection started. The lab registers it with {md.code(prov.verify_command.replace('prespec verify', 'prespec register', 1))} "
+                f"was fixed before data collection started. The lab registers it with {md.code(register)} "
                 "before the start.")
     return (md.table(["Record", "Value"], rows) + "\n\n"
             f"A reviewer can check this registration: in a clone of the registry run {md.code(prov.verify_command)} "
