@@ -1,6 +1,6 @@
 """Ties git (registry/git.py) to the drift analysis (registry/history.py) for the commands.
 
-``check`` calls :func:`add_history`; ``history``, ``freeze`` and ``verify`` use
+``check`` calls :func:`add_history`; ``history``, ``register`` and ``verify`` use
 :func:`read_history` and :func:`find_spec`; a summary renderer can call
 :func:`provenance` for a spec's drift verdict, last commit and registration tag.
 """
@@ -206,6 +206,7 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
         repo = by_folder[folder]
         if repo is None:
             status.outside.append(report.path)
+            _no_history(report, spec_file, config_for, today)
             continue
         repos.setdefault(repo.root, (repo, []))[1].append((report, spec_file))
     scopes = [Path(os.path.abspath(p)).resolve() for p in paths]
@@ -250,6 +251,20 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
                                    f"spec it belongs to could be named; its history may be incomplete ({why})")
         reports += _deleted_reports(registry, seen, scopes, all_tags)
     return status
+
+
+def _no_history(report: SpecReport, spec_file: SpecFile,
+                config_for: Callable[[SpecFile], RegistryConfig] | None, today: date) -> None:
+    """A spec outside any git repository whose start has passed: nothing shows it was fixed first."""
+    if report.spec is None or today < report.spec.data_collection.start:
+        return
+    required = config_for(spec_file).require_history if config_for else False
+    report.add("no-history", "error" if required else "warning", "data_collection.start",
+               f"data collection started on {report.spec.data_collection.start} and this spec is not in a git "
+               "repository: nothing can show this design was fixed before the start; keep the registry in git and "
+               "commit (and register) each spec before its start"
+               + (" (require_history: true in .prespec.yaml makes this an error)" if required else ""),
+               ("data_collection", "start"))
 
 
 def _unreachable_tags(repo: Repository, spec_id: str, tags: Sequence[TagInfo] | None) -> list[Finding]:

@@ -6,6 +6,7 @@ the results and ``report.py`` formats them.
 
 from __future__ import annotations
 
+import functools
 import math
 import re
 from collections import defaultdict
@@ -186,6 +187,7 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
     _simulation(report, spec)
     _pilot(report, spec, spec_file)
     _completeness(report, spec)
+    _template_text(report, spec)
     stem = spec_file.path.name.rsplit(".", 1)[0]
     if stem != spec.id:
         report.add("id-mismatch", "warning", "id",
@@ -344,6 +346,61 @@ def _completeness(report: SpecReport, spec: Spec) -> None:
             report.add("incomplete", "warning", f"design.{name}",
                        f"design.{name} is not stated; the default {getattr(spec.design, name):g} was used, "
                        "state it so reviewers see it", ("design",))
+
+
+_ID_SENTINEL = "template-spec-id"
+#: Template fields whose text is a sensible value as it stands, or a choice rather than a placeholder
+#: (ids, such as the hypothesis id H1, are names, never placeholders).
+_TEMPLATE_CHOICES = frozenset({"status", "data_collection.start", "design.test", "design.alternative",
+                               "stopping_rule"})
+
+
+@functools.lru_cache(maxsize=None)
+def _template_texts(test: str) -> tuple[tuple[tuple[Any, ...], str], ...]:
+    """(path, text) of every placeholder text in the template ``prespec new`` writes for ``test``."""
+    from datetime import date as _date
+
+    from .commands.new import template
+    from .yamlio import load_bytes
+
+    data = load_bytes(template(_ID_SENTINEL, test, None, "schema.json", _date(2000, 1, 1)).encode("utf-8"),
+                      "template").data
+    out: list[tuple[tuple[Any, ...], str]] = []
+
+    def walk(value: Any, loc: tuple[Any, ...]) -> None:
+        if isinstance(value, dict):
+            for key, child in value.items():
+                walk(child, (*loc, key))
+        elif isinstance(value, list):
+            for index, child in enumerate(value):
+                walk(child, (*loc, index))
+        elif isinstance(value, str) and loc[-1:] != ("id",) and ".".join(str(p) for p in loc) not in _TEMPLATE_CHOICES:
+            out.append((loc, value))
+
+    walk(data, ())
+    return tuple(out)
+
+
+def _template_text(report: SpecReport, spec: Spec) -> None:
+    """Text left as ``prespec new`` wrote it (a placeholder question, outcome "primary outcome", ...)."""
+    if report.document is None:
+        return
+    data = report.document.data
+    for loc, text in _template_texts(spec.design.test):
+        value: Any = data
+        for part in loc:
+            ok = isinstance(value, dict) and part in value if isinstance(part, str) else \
+                isinstance(value, list) and part < len(value)
+            if not ok:
+                value = None
+                break
+            value = value[part]
+        placeholder = text.replace(_ID_SENTINEL, spec.id)
+        if isinstance(value, str) and value.strip() == placeholder:
+            path = ".".join(f"[{p}]" if isinstance(p, int) else p for p in loc).replace(".[", "[")
+            report.add("template-text", "warning", path,
+                       f"{path} is still the template's placeholder {placeholder!r}; write this experiment's own "
+                       "text (register refuses a spec with template text)", loc)
 
 
 def check_files(files: list[SpecFile], config_for: Any = None) -> list[SpecReport]:

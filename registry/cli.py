@@ -9,13 +9,13 @@ import traceback
 from types import ModuleType
 
 from . import __version__
-from .commands import check, demo, freeze, hash, history, new, pilot, render, schema, size, verify
+from .commands import check, demo, hash, history, new, pilot, register, render, schema, size, verify
 from .discovery import UsageError
 
 __all__ = ["main", "COMMANDS"]
 
 #: Each command module has ``HELP``, ``add_arguments(parser)`` and ``run(args) -> int``.
-COMMANDS: tuple[ModuleType, ...] = (check, size, new, pilot, render, history, freeze, verify, hash, demo, schema)
+COMMANDS: tuple[ModuleType, ...] = (check, size, new, pilot, render, history, register, verify, hash, demo, schema)
 
 
 class _Parser(argparse.ArgumentParser):

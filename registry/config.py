@@ -11,9 +11,29 @@ from .discovery import SpecFile
 from .problems import InvalidSpec
 from .yamlio import load_file
 
-__all__ = ["RegistryConfig", "CONFIG_NAME", "load_config", "find_config", "config_loader"]
+__all__ = ["RegistryConfig", "TimestampSettings", "CONFIG_NAME", "load_config", "find_config", "config_loader",
+           "trust_paths"]
 
 CONFIG_NAME = ".prespec.yaml"
+
+
+class TimestampSettings(BaseModel):
+    """Independent time-stamping authorities (RFC 3161) ``register`` asks, and the CA certificates
+    ``verify`` trusts for them."""
+
+    model_config = ConfigDict(extra="forbid", strict=True)
+
+    authorities: list[str] = Field(
+        default_factory=list,
+        description="Addresses (http:// or https://) of RFC 3161 time-stamping authorities that register asks "
+        "for a token.",
+    )
+    trust: list[str] = Field(
+        default_factory=list,
+        description="PEM files of the authorities' CA certificates, relative to this file's folder and inside it; "
+        "verify checks tokens against them unless a reviewer passes --trust.",
+    )
+    timeout: float = Field(default=20.0, gt=0, le=300, description="Seconds to wait for an authority's answer.")
 
 
 class RegistryConfig(BaseModel):
@@ -32,6 +52,13 @@ class RegistryConfig(BaseModel):
         default_factory=list,
         description="Extra dotted field paths to treat as locked, beyond those the spec model locks.",
     )
+    require_history: bool = Field(
+        default=False,
+        description="Make a spec outside any git repository whose start has passed an error (no-history), "
+        "not a warning.",
+    )
+    timestamp: TimestampSettings = Field(default_factory=TimestampSettings,
+                                         description="RFC 3161 time-stamping authorities and trust anchors.")
 
 
 def find_config(start: Path) -> Path | None:
@@ -44,6 +71,27 @@ def find_config(start: Path) -> Path | None:
         if (candidate / ".git").exists():
             return None
     return None
+
+
+def trust_paths(config_path: Path | None, config: RegistryConfig) -> list[Path]:
+    """The trust files a config names, resolved against its folder; :class:`InvalidSpec` for one
+    outside that folder (a reviewer's prespec reads only inside the registry)."""
+    if config_path is None:
+        return []
+    folder = config_path.parent.resolve()
+    out = []
+    for index, name in enumerate(config.timestamp.trust):
+        path = (folder / name).resolve()
+        try:
+            path.relative_to(folder)
+        except ValueError:
+            from .problems import Problem
+
+            raise InvalidSpec(str(config_path), [Problem(
+                f"timestamp.trust[{index}]", f"{name!r} lies outside the registry folder {folder}; name a PEM file "
+                "inside it (or pass --trust FILE)", None, None)], []) from None
+        out.append(path)
+    return out
 
 
 def load_config(path: Path | None) -> RegistryConfig:

@@ -71,7 +71,7 @@ def _sync_folder(folder: Path) -> None:
         os.close(fd)
 
 
-def write_atomic(path: Path | str, text: str, *, overwrite: bool = True) -> Path:
+def write_atomic(path: Path | str, text: str | bytes, *, overwrite: bool = True) -> Path:
     """Write ``text`` to ``path`` through a temporary file and a rename, so readers never see half a file.
 
     ``overwrite=False`` refuses (``WriteRefused``) when anything, even a dangling symbolic link,
@@ -86,7 +86,8 @@ def write_atomic(path: Path | str, text: str, *, overwrite: bool = True) -> Path
     mode = _mode_for(path, overwrite)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
+        with (os.fdopen(fd, "wb") if isinstance(text, bytes) else
+              os.fdopen(fd, "w", encoding="utf-8", newline="\n")) as handle:
             handle.write(text)
             handle.flush()
             os.fsync(handle.fileno())

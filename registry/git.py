@@ -153,7 +153,7 @@ def _parse_log(raw: bytes, suffixes: tuple[str, ...]) -> list[LogEntry]:
 
 
 class Repository:
-    """A git working tree prespec reads (and, for ``freeze`` and ``demo``, writes)."""
+    """A git working tree prespec reads (and, for ``register`` and ``demo``, writes)."""
 
     def __init__(self, repo: git.Repo) -> None:
         self._repo = repo
@@ -295,6 +295,22 @@ class Repository:
         """Whether the user's git config asks for signed tags (tag.gpgSign) or names a signing key."""
         sign = (self.config_value("tag.gpgSign") or "").lower()
         return sign in ("true", "yes", "on", "1") or self.config_value("user.signingkey") is not None
+
+    def verify_tag(self, name: str, allowed_signers: Path | None = None) -> tuple[int, str]:
+        """``git verify-tag`` of ``name``: its exit status and what git and the signing program said.
+        The signing programs are fixed to the standard ones, whatever the repository's config names;
+        ``allowed_signers`` is the SSH allowed-signers file to check SSH signatures against."""
+        if name.startswith("-"):
+            raise GitProblem(f"{name!r} is not a tag name")
+        args = ["git", "-c", "gpg.program=gpg", "-c", "gpg.ssh.program=ssh-keygen", "-c", "gpg.x509.program=gpgsm"]
+        if allowed_signers is not None:
+            args += ["-c", f"gpg.ssh.allowedSignersFile={allowed_signers}"]
+        try:
+            status, out, err = self._repo.git.execute([*args, "verify-tag", name], with_extended_output=True,
+                                                      with_exceptions=False)
+        except OSError as error:  # the signing program is not installed
+            return 127, f"cannot run the signature check: {error}"
+        return int(status), "\n".join(part for part in (str(out).strip(), str(err).strip()) if part)
 
     def tags(self, pattern: str) -> list[TagInfo]:
         """Tags matching the ``refs/tags/`` glob ``pattern``, each marked reachable from HEAD or not."""

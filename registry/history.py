@@ -9,6 +9,9 @@ order, layout and number spelling are never changes), and decides:
 - ``drift`` (error): a locked field changed in a commit dated on or after the start
   of data collection, with no amendment entry added in that same commit covering it;
 - ``amended`` (info): such a change, covered by an amendment added in the same commit;
+- ``disclosed-deviation`` (warning): such a change without an amendment in its commit, disclosed
+  by an amendment added in a later commit that lists the field and names the change's commit
+  (``discloses: <sha>``) or date (``discloses: YYYY-MM-DD``); the message gives the delay in days;
 - ``uncommitted``: working-tree edits of locked fields against HEAD;
 - ``incomplete-history``: a shallow clone, or a first version already after the start;
 - ``date-order``: a commit dated before its parent;
@@ -29,6 +32,7 @@ committer recorded (docs/reviewer-guide.md explains why, and the limits).
 
 from __future__ import annotations
 
+import dataclasses
 import json
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
@@ -357,6 +361,8 @@ class FieldChange:
     locked: bool
     after_start: bool
     amendment: dict[str, Any] | None = None
+    #: A later amendment that discloses this change (a deviation, not drift).
+    disclosure: dict[str, Any] | None = None
 
     @property
     def amended(self) -> bool:
@@ -366,7 +372,7 @@ class FieldChange:
         return {"field": self.field, "old": None if self.old is MISSING else self.old,
                 "new": None if self.new is MISSING else self.new, "old_absent": self.old is MISSING,
                 "new_absent": self.new is MISSING, "locked": self.locked, "after_start": self.after_start,
-                "amended": self.amended, "amendment": self.amendment}
+                "amended": self.amended, "amendment": self.amendment, "disclosure": self.disclosure}
 
 
 @dataclass(frozen=True)
@@ -453,7 +459,8 @@ class SpecHistory:
 _VERDICTS: tuple[tuple[str, str], ...] = (
     ("drift", "drift"), ("history-unreadable", "unreadable"), ("incomplete-history", "incomplete"),
     ("rewritten-history", "rewritten"), ("deleted", "deleted"), ("untracked", "untracked"),
-    ("future-date", "unreliable-dates"), ("date-order", "unreliable-dates"), ("amended", "amended"))
+    ("disclosed-deviation", "deviation"), ("future-date", "unreliable-dates"), ("date-order", "unreliable-dates"),
+    ("amended", "amended"))
 
 
 def verdict_of(kinds: Iterable[str]) -> str:
@@ -544,6 +551,8 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
     previous: Snapshot | None = None
     started: date | None = None
     reported: set[str] = set()  # unreadable blobs already named
+    drifts: dict[tuple[int, str], Finding] = {}  # (revision index, field) -> its drift finding
+    later: list[tuple[int, Commit, list[dict[str, Any]]]] = []  # amendments each later commit added
     if not events:
         history.findings.append(Finding(
             "untracked", "warning", "", None,
@@ -583,7 +592,12 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
                                others=parents[1:] if event.merge else ())
             for change in changes:
                 if change.locked and after:
-                    history.findings.append(_drift_finding(change, commit, started, merge=event.merge))
+                    finding = _drift_finding(change, commit, started, merge=event.merge)
+                    history.findings.append(finding)
+                    if finding.kind == "drift":
+                        drifts[(len(history.revisions), change.field)] = finding
+            if after and base is not None and new is not None:
+                later.append((len(history.revisions), commit, _added_amendments(base, new, parents[1:])))
         if index == 0 and action == "added" and after and not shallow:
             history.findings.append(Finding(
                 "incomplete-history", "warning", "data_collection.start", None,
@@ -607,6 +621,8 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
             history.last_path = event.old_path
     history.start = previous.start if previous is not None else None
     history.started_on = started
+    if drifts:
+        _disclose(history, drifts, later)
     if history.revisions and history.revisions[-1].action == "removed":
         gone = history.revisions[-1]
         history.findings.append(Finding(
@@ -686,6 +702,45 @@ def _covering(added: list[dict[str, Any]], path: str) -> dict[str, Any] | None:
     return None
 
 
+def _added_amendments(base: Snapshot, new: Snapshot, others: Sequence[Snapshot]) -> list[dict[str, Any]]:
+    """The amendment entries ``new`` has that ``base`` (and a merge's other parents) lack."""
+    before = {json.dumps(a, sort_keys=True, default=str) for snap in (base, *others) for a in snap.amendments()}
+    return [a for a in new.amendments() if json.dumps(a, sort_keys=True, default=str) not in before]
+
+
+def _names_commit(amendment: dict[str, Any], commit: Commit) -> bool:
+    """Whether an amendment's ``discloses`` names ``commit``: a prefix of its id (7+ hex digits) or its date."""
+    named = str(amendment.get("discloses") or "").strip().lower()
+    if len(named) >= 7 and all(ch in "0123456789abcdef" for ch in named):
+        return commit.sha.startswith(named)
+    return bool(named) and named == commit_day(commit.committer_date).isoformat()
+
+
+def _disclose(history: SpecHistory, drifts: dict[tuple[int, str], Finding],
+              later: Sequence[tuple[int, Commit, list[dict[str, Any]]]]) -> None:
+    """Turn each drift that a later commit's amendment discloses into a ``disclosed-deviation``."""
+    for (index, path), finding in drifts.items():
+        revision = history.revisions[index]
+        match = next(((commit, a) for i, commit, added in later if i > index for a in added
+                      if _names_commit(a, revision.commit) and isinstance(a.get("fields"), list)
+                      and any(isinstance(f, str) and covers(f, path) for f in a["fields"])), None)
+        if match is None:
+            continue
+        commit, amendment = match
+        change = next(c for c in revision.changes if c.field == path)
+        history.revisions[index] = revision = dataclasses.replace(revision, changes=tuple(
+            dataclasses.replace(c, disclosure=amendment) if c is change else c for c in revision.changes))
+        delay = (commit_day(commit.committer_date) - commit_day(revision.commit.committer_date)).days
+        reason = str(amendment.get("reason", "")).strip()
+        message = (f"{path} changed {show_change(change.old, change.new)} in commit {revision.commit.short} on "
+                   f"{_short_date(revision.commit.committer_date)} by {revision.commit.author}, after data collection "
+                   f"started ({history.started_on}), without an amendment in that commit; disclosed {delay} day(s) "
+                   f"later by the amendment of {amendment.get('date')} added in commit {commit.short}: "
+                   f"{show(reason, 100)}. The registration holds only for the fields that did not change")
+        history.findings = [Finding("disclosed-deviation", "warning", path, None, message) if f is finding else f
+                            for f in history.findings]
+
+
 def _drift_finding(change: FieldChange, commit: Commit, started: date | None, *, merge: bool = False) -> Finding:
     where = (f"merge commit {commit.short} (the merged value is in none of its parents)" if merge
              else f"commit {commit.short}")
@@ -698,7 +753,9 @@ def _drift_finding(change: FieldChange, commit: Commit, started: date | None, *,
                        f"commit: {show(reason, 100)}")
     return Finding("drift", "error", change.field, None,
                    f"{what}, with no amendment entry covering it added in that commit; a locked field may change "
-                   "after the start only together with an entry under 'amendments' listing it in 'fields'")
+                   "after the start only together with an entry under 'amendments' listing it in 'fields'. To "
+                   f"disclose it now, commit an amendment listing {change.field} in 'fields' with "
+                   f"'discloses: {commit.short}' (a disclosed deviation)")
 
 
 def _date_order(commit: Commit, commit_dates: Mapping[str, datetime]) -> list[Finding]:

@@ -115,6 +115,11 @@ class Amendment(_Strict):
     )
     reason: Text = free(description="Why the change was needed and who approved it.")
     approved_by: ShortText | None = free(default=None, description="Who approved the amendment.")
+    discloses: Annotated[str, Field(pattern=r"^([0-9a-f]{7,40}|[0-9]{4}-[0-9]{2}-[0-9]{2})$")] | None = free(
+        default=None,
+        description="For a change already committed without an amendment: that commit (7 to 40 hex digits) or its "
+        "date (YYYY-MM-DD). Added in a later commit, the entry discloses the change as a deviation.",
+    )
 
 
 class Contact(_Strict):

@@ -82,8 +82,8 @@ def test_repository_with_no_commits_reports_the_spec_untracked(lab, run):
     assert [f["kind"] for f in history.json()["findings"]] == ["untracked"]
     verify = run("verify", "mouse-diet", lab.registry, "--json")
     assert verify.status == 1 and "no tag" in _failed_checks(verify)["registration tag"]
-    freeze = run("freeze", "mouse-diet", lab.registry)
-    assert freeze.status == 1 and "not committed" in freeze.err
+    registered = run("register", "mouse-diet", lab.registry)
+    assert registered.status == 1 and "not committed" in registered.err
 
 
 # ------------------------------------------------------------------ untracked spec beside committed ones
@@ -126,10 +126,10 @@ def test_detached_head_is_analysed_and_said(lab, run):
 
 
 def test_verify_on_a_detached_head_checks_that_commit(lab, run):
-    lab.write(SPEC, spec_text(start=FUTURE_START))
+    lab.write(SPEC, spec_text(start=FUTURE_START, status="planned"))
     registered = lab.commit("register", BEFORE)
-    assert run("freeze", "mouse-diet", lab.registry).status == 0
-    lab.write(SPEC, spec_text(start=FUTURE_START, analysis="Rank test."))
+    assert run("register", "mouse-diet", lab.registry).status == 0
+    lab.write(SPEC, spec_text(start=FUTURE_START, status="planned", analysis="Rank test."))
     changed = lab.commit("changed after registration", "2020-01-12T10:00:00+01:00")
     lab.repo.checkout(changed, detach=True)
     result = run("verify", "mouse-diet", lab.registry, "--json")
@@ -157,10 +157,10 @@ def test_history_command_on_a_shallow_clone_is_incomplete(lab, run, tmp_path):
 
 
 def test_history_and_verify_of_a_spec_deleted_in_head(lab, run):
-    lab.write(SPEC, spec_text(start=FUTURE_START))
+    lab.write(SPEC, spec_text(start=FUTURE_START, status="planned"))
     lab.write("kept-study.yaml", spec_text("kept-study", start=FUTURE_START))
     lab.commit("register", BEFORE)
-    assert run("freeze", "mouse-diet", lab.registry).status == 0
+    assert run("register", "mouse-diet", lab.registry).status == 0
     (lab.registry / SPEC).unlink()
     gone = lab.commit("delete", "2020-01-12T10:00:00+01:00")
     check = run("check", "--json", lab.registry)
@@ -250,7 +250,7 @@ def test_rewritten_history_makes_the_verdict_rewritten(lab, run):
     first = lab.commit("draft", BEFORE)
     lab.write(SPEC, spec_text(start=FUTURE_START, status="planned"))
     lab.commit("ready", "2020-01-11T10:00:00+01:00")
-    assert run("freeze", "mouse-diet", lab.registry).status == 0
+    assert run("register", "mouse-diet", lab.registry).status == 0
     lab.repo.reset_hard(first)
     lab.write(SPEC, spec_text(start=FUTURE_START, status="planned", sd="4.0"))
     lab.commit("ready, rewritten", "2020-01-11T10:00:00+01:00")
@@ -279,10 +279,10 @@ def test_future_dated_commit_is_a_warning_and_not_clean(lab, run):
     assert "future-date" in [f["kind"] for f in history["findings"]] and history["verdict"] == "unreliable-dates"
 
 
-def test_freeze_refuses_a_future_dated_head(lab, run):
+def test_register_refuses_a_future_dated_head(lab, run):
     lab.write(SPEC, spec_text(start=FUTURE_START))
     lab.commit("register", "2098-05-01T10:00:00+00:00")
-    result = run("freeze", "mouse-diet", lab.registry)
+    result = run("register", "mouse-diet", lab.registry)
     assert result.status == 1 and "later than now" in result.err
     assert lab.repo.tags("prespec/*") == []
 
@@ -385,17 +385,17 @@ def test_unreadable_older_version_hides_nothing(lab, run):
     assert spec["history"]["verdict"] == "unreadable"
 
 
-def test_verify_and_freeze_with_an_unreadable_registered_version(lab, run):
-    lab.write(SPEC, spec_text(start=FUTURE_START))
+def test_verify_and_register_with_an_unreadable_registered_version(lab, run):
+    lab.write(SPEC, spec_text(start=FUTURE_START, status="planned"))
     lab.commit("register", BEFORE)
-    assert run("freeze", "mouse-diet", lab.registry).status == 0
+    assert run("register", "mouse-diet", lab.registry).status == 0
     _break_blob(lab, lab.repo.tree_files()[f"registry/{SPEC}"], "overwrite")
     result = run("verify", "mouse-diet", lab.registry, "--json")
     failed = _failed_checks(result)
     assert result.status == 1 and "content hash" in failed and "corrupt" in failed["content hash"]
     assert "cannot be read" in failed["no unamended change since"]
-    lab.write(SPEC, spec_text(start=FUTURE_START, analysis="Rank test."))  # new content: freeze would tag HEAD
-    refused = run("freeze", "mouse-diet", lab.registry)
+    lab.write(SPEC, spec_text(start=FUTURE_START, status="planned", analysis="Rank test."))  # new content: register would tag HEAD
+    refused = run("register", "mouse-diet", lab.registry)
     assert refused.status == 1 and "corrupt" in refused.err and "Traceback" not in refused.err
 
 

@@ -307,7 +307,7 @@ def test_rewritten_history_under_a_registration_tag(lab, run):
     first = lab.commit("draft", BEFORE)
     lab.write("mouse-diet.yaml", spec_text(start="2099-01-04", status="planned"))
     lab.commit("ready", "2020-01-11T10:00:00+01:00")
-    assert run("freeze", "mouse-diet", lab.registry).status == 0
+    assert run("register", "mouse-diet", lab.registry).status == 0
     assert "rewritten-history" not in kinds(run("check", "--json", lab.registry))[0]
     # rewrite: drop the registered commit and put another in its place (what a rebase or amend does)
     lab.repo.reset_hard(first)

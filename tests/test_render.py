@@ -411,7 +411,7 @@ def test_provenance_names_commit_tag_and_hash(run, tmp_path, epoch):
     shutil.copy(EXAMPLES / "fibre-butyrate.yaml", folder)
     repo.index.add(["fibre-butyrate.yaml"])
     commit = repo.index.commit("Register fibre-butyrate")
-    repo.create_tag("prespec/fibre-butyrate/v1", ref=commit, message="registration")  # freeze's tag name
+    repo.create_tag("prespec/fibre-butyrate/v1", ref=commit, message="registration")  # register's tag name
     result = run("render", "fibre-butyrate", "--out", tmp_path / "out", "--registry", folder)
     assert result.status == 0, result.err
     markdown = (tmp_path / "out" / "fibre-butyrate.md").read_text()
@@ -423,7 +423,7 @@ def test_provenance_names_commit_tag_and_hash(run, tmp_path, epoch):
     assert _cells(markdown, "Committed (UTC)")[1] == iso_utc(commit.committed_datetime)
     assert _cells(markdown, "Working copy")[1] == "identical to the commit above"
     assert _cells(markdown, "Content SHA-256")[1] == f"`{content_hash(report.spec)}`"
-    assert _cells(markdown, "Freeze tag")[1] == f"`prespec/fibre-butyrate/v1` at `{commit.hexsha[:12]}`"
+    assert _cells(markdown, "Registration tag")[1] == f"`prespec/fibre-butyrate/v1` at `{commit.hexsha[:12]}`"
     assert _cells(markdown, "Data collection starts")[1] == report.spec.data_collection.start.isoformat()
     assert _cells(markdown, "Verify with")[1] == "`prespec verify fibre-butyrate`"
     assert _cells(markdown, "Rendered at (UTC)")[1] == "2027-01-15T08:00:00Z"
@@ -442,7 +442,7 @@ def test_provenance_outside_git(run, tmp_path, epoch):
     markdown = (tmp_path / "out" / "organoid-doubling.md").read_text()
     if _cells(markdown, "Last commit of the file")[1] != "not committed to git":  # tmp_path inside a repository
         pytest.skip("the temporary folder lies inside a git working tree")
-    assert _cells(markdown, "Freeze tag")[1] == "not frozen"
+    assert _cells(markdown, "Registration tag")[1] == "not registered"
 
 
 # ------------------------------------------------------------------ looks

@@ -79,7 +79,7 @@ def build_demo(target: Path) -> Path:
     first = repo.commit_all("Register the lab's planned experiments", author=_LEAD,
                             date="2024-01-15T10:00:00+01:00")
 
-    # Registration of fibre-butyrate before its start (what `prespec freeze` records).
+    # Registration of fibre-butyrate before its start (what `prespec register` records).
     from ..audit import find_spec
     from ..canonical import content_hash
 

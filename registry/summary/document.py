@@ -26,7 +26,8 @@ __all__ = ["HISTORY_KINDS", "drift_verdict", "summary_markdown", "index_markdown
 
 #: Finding kinds that come from reading the spec's git history, most serious first.
 HISTORY_KINDS: tuple[str, ...] = ("drift", "history-unreadable", "incomplete-history", "untracked", "uncommitted",
-                                  "rewritten-history", "deleted", "future-date", "date-order", "amended")
+                                  "rewritten-history", "deleted", "disclosed-deviation", "future-date", "date-order",
+                                  "amended")
 NOT_CHECKED = "history not checked"
 
 #: Effect fields measured in the primary outcome's unit.
@@ -509,7 +510,7 @@ def _provenance(prov: Provenance) -> str:
         committed = iso_utc(prov.committed) if prov.committed else "-"
         copy = ("has uncommitted changes: this summary shows the working copy, not the commit above"
                 if prov.modified else "identical to the commit above")
-    tags = ", ".join(f"{md.code(name)} at {md.code(sha[:12])}" for name, sha in prov.freeze_tags) or "not frozen"
+    tags = ", ".join(f"{md.code(name)} at {md.code(sha[:12])}" for name, sha in prov.freeze_tags) or "not registered"
     rows = [
         ("Spec file", md.cell(prov.spec_path)),
         ("Last commit of the file", commit),
@@ -517,11 +518,18 @@ def _provenance(prov: Provenance) -> str:
         ("Working copy", copy),
         ("Data collection starts", prov.data_collection_start.isoformat()),
         ("Content SHA-256", md.code(prov.content_sha256)),
-        ("Freeze tag", tags),
+        ("Registration tag", tags),
         ("Rendered at (UTC)", iso_utc(prov.rendered_at)),
         ("Rendered by", f"prespec {md.cell(prov.tool_version)}"),
-        ("Verify with", md.code(prov.verify_command)),
+        ("Verify with", md.code(prov.verify_command) if prov.freeze_tags else
+         "not registered: there is no registration to verify"),
     ]
+    if not prov.freeze_tags:
+        register = prov.verify_command.replace("prespec verify", "prespec register", 1)
+        return (md.table(["Record", "Value"], rows) + "\n\n"
+                "This spec is not registered: no registration tag records it, so nothing shows that this design "
+                f"was fixed before data collection started. The lab registers it with {md.code(register)} "
+                "before the start.")
     return (md.table(["Record", "Value"], rows) + "\n\n"
             f"A reviewer can check this registration: in a clone of the registry run {md.code(prov.verify_command)} "
             "and compare the content SHA-256 it reports with the one above. The hash covers the locked "

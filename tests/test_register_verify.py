@@ -1,4 +1,4 @@
-"""``prespec freeze`` and ``prespec verify`` on real temporary repositories.
+"""``prespec register`` and ``prespec verify`` on real temporary repositories.
 
 References: git's own records (tags, commits and dates made with pinned GIT_* values)
 and the SHA-256 of the canonical JSON recomputed with hashlib, as docs/reviewer-guide.md
@@ -27,7 +27,7 @@ BEFORE = "2020-01-10T10:00:00+01:00"
 @pytest.fixture
 def lab(tmp_path):
     lab = Lab(tmp_path / "lab")
-    lab.write("mouse-diet.yaml", spec_text(start=FUTURE))
+    lab.write("mouse-diet.yaml", spec_text(start=FUTURE, status="planned"))
     lab.commit("register", BEFORE)
     return lab
 
@@ -40,8 +40,8 @@ def _hand_hash(path) -> str:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
-def test_freeze_records_an_annotated_tag_and_verify_passes(lab, run):
-    result = run("freeze", "mouse-diet", lab.registry)
+def test_register_records_an_annotated_tag_and_verify_passes(lab, run):
+    result = run("register", "mouse-diet", lab.registry)
     assert result.status == 0, result.err
     tags = lab.repo.tags("prespec/mouse-diet/*")
     assert [t.name for t in tags] == ["prespec/mouse-diet/v1"] and tags[0].annotated
@@ -53,7 +53,7 @@ def test_freeze_records_an_annotated_tag_and_verify_passes(lab, run):
     verified = run("verify", "mouse-diet", lab.registry)
     assert verified.status == 0, verified.out
     as_json = run("verify", "mouse-diet", lab.registry, "--json").json()
-    assert as_json["verified"] is True and all(c["ok"] for c in as_json["checks"])
+    assert as_json["holds"] is True and all(c["ok"] for c in as_json["checks"])
 
 
 def test_hash_command_matches_the_hand_recipe(lab, run):
@@ -64,56 +64,56 @@ def test_hash_command_matches_the_hand_recipe(lab, run):
     assert run("hash", "mouse-diet", lab.registry).out.split()[0] == line.split()[0]
 
 
-def test_second_freeze_increments_the_version_only_for_new_content(lab, run):
-    assert run("freeze", "mouse-diet", lab.registry).status == 0
-    again = run("freeze", "mouse-diet", lab.registry)
+def test_second_register_increments_the_version_only_for_new_content(lab, run):
+    assert run("register", "mouse-diet", lab.registry).status == 0
+    again = run("register", "mouse-diet", lab.registry)
     assert again.status == 1 and "already registers" in again.err
-    lab.write("mouse-diet.yaml", spec_text(start=FUTURE, analysis="Rank test."))
+    lab.write("mouse-diet.yaml", spec_text(start=FUTURE, status="planned", analysis="Rank test."))
     lab.commit("before the start: new analysis", "2020-01-12T10:00:00+01:00")
-    assert run("freeze", "mouse-diet", lab.registry).status == 0
+    assert run("register", "mouse-diet", lab.registry).status == 0
     assert [t.name for t in lab.repo.tags("prespec/mouse-diet/*")] == ["prespec/mouse-diet/v1",
                                                                         "prespec/mouse-diet/v2"]
     assert run("verify", "mouse-diet", lab.registry).status == 0
 
 
-def test_freeze_refuses_a_dirty_tree(lab, run):
-    lab.write("mouse-diet.yaml", spec_text(start=FUTURE, analysis="Edited, not committed."))
-    result = run("freeze", "mouse-diet", lab.registry)
+def test_register_refuses_a_dirty_tree(lab, run):
+    lab.write("mouse-diet.yaml", spec_text(start=FUTURE, status="planned", analysis="Edited, not committed."))
+    result = run("register", "mouse-diet", lab.registry)
     assert result.status == 1 and "uncommitted changes" in result.err
     assert lab.repo.tags("prespec/*") == []
 
 
-def test_freeze_refuses_an_uncommitted_spec(lab, run):
-    lab.write("other.yaml", spec_text("other-study", start=FUTURE))
-    result = run("freeze", "other-study", lab.registry)
+def test_register_refuses_an_uncommitted_spec(lab, run):
+    lab.write("other.yaml", spec_text("other-study", start=FUTURE, status="planned"))
+    result = run("register", "other-study", lab.registry)
     assert result.status == 1 and "not committed" in result.err
 
 
-def test_freeze_refuses_an_underpowered_spec(lab, run):
+def test_register_refuses_an_underpowered_spec(lab, run):
     # difference 4, SD 5, power 0.8 needs 29 per group with 10% attrition: 10 is underpowered
-    lab.write("mouse-diet.yaml", spec_text(start=FUTURE, per_group="10"))
+    lab.write("mouse-diet.yaml", spec_text(start=FUTURE, status="planned", per_group="10"))
     lab.commit("fewer mice", "2020-01-12T10:00:00+01:00")
-    result = run("freeze", "mouse-diet", lab.registry)
+    result = run("register", "mouse-diet", lab.registry)
     assert result.status == 1 and "underpowered" in result.err
 
 
-def test_freeze_refuses_an_invalid_spec(lab, run):
-    lab.write("mouse-diet.yaml", spec_text(start=FUTURE, alpha="5%"))
+def test_register_refuses_an_invalid_spec(lab, run):
+    lab.write("mouse-diet.yaml", spec_text(start=FUTURE, status="planned", alpha="5%"))
     lab.commit("broken", "2020-01-12T10:00:00+01:00")
-    result = run("freeze", lab.registry / "mouse-diet.yaml")
+    result = run("register", lab.registry / "mouse-diet.yaml")
     assert result.status == 1 and "invalid" in result.err and "alpha" in result.err
 
 
-def test_freeze_refuses_after_the_start(lab, run):
-    lab.write("mouse-diet.yaml", spec_text(start=PAST))
+def test_register_refuses_after_the_start(lab, run):
+    lab.write("mouse-diet.yaml", spec_text(start=PAST, status="planned"))
     lab.commit("start in the past", "2020-01-12T10:00:00+01:00")
-    result = run("freeze", "mouse-diet", lab.registry)
+    result = run("register", "mouse-diet", lab.registry)
     assert result.status == 1 and "started on 2020-03-02" in result.err
 
 
-def test_freeze_outside_a_repository_is_a_usage_error(tmp_path, run):
-    (tmp_path / "mouse-diet.yaml").write_text(spec_text(start=FUTURE), encoding="utf-8")
-    result = run("freeze", "mouse-diet", tmp_path)
+def test_register_outside_a_repository_is_a_usage_error(tmp_path, run):
+    (tmp_path / "mouse-diet.yaml").write_text(spec_text(start=FUTURE, status="planned"), encoding="utf-8")
+    result = run("register", "mouse-diet", tmp_path)
     assert result.status == 2 and "not inside a git repository" in result.err
 
 
@@ -126,13 +126,13 @@ def test_signing_follows_the_users_git_config(lab):
 
 def test_verify_fails_without_a_tag(lab, run):
     result = run("verify", "mouse-diet", lab.registry, "--json")
-    assert result.status == 1 and result.json()["verified"] is False
+    assert result.status == 1 and result.json()["holds"] is False
     assert "no tag" in result.json()["checks"][0]["detail"]
 
 
 def test_verify_fails_after_an_unamended_locked_change(lab, run):
-    assert run("freeze", "mouse-diet", lab.registry).status == 0
-    lab.write("mouse-diet.yaml", spec_text(start=FUTURE, analysis="Rank test."))
+    assert run("register", "mouse-diet", lab.registry).status == 0
+    lab.write("mouse-diet.yaml", spec_text(start=FUTURE, status="planned", analysis="Rank test."))
     lab.commit("changed after registration", "2020-01-12T10:00:00+01:00")
     result = run("verify", "mouse-diet", lab.registry, "--json")
     assert result.status == 1
@@ -142,7 +142,7 @@ def test_verify_fails_after_an_unamended_locked_change(lab, run):
 
 
 def test_verify_accepts_free_field_changes_after_registration(lab, run):
-    assert run("freeze", "mouse-diet", lab.registry).status == 0
+    assert run("register", "mouse-diet", lab.registry).status == 0
     lab.write("mouse-diet.yaml", spec_text(start=FUTURE, status="planned", extra="notes: ready\n"))
     lab.commit("status", "2020-01-12T10:00:00+01:00")
     assert run("verify", "mouse-diet", lab.registry).status == 0
@@ -164,7 +164,7 @@ def test_verify_fails_on_a_hash_mismatch(lab, run):
 
 def test_verify_fails_for_a_tag_made_after_the_start(tmp_path, run):
     lab = Lab(tmp_path / "late")
-    lab.write("mouse-diet.yaml", spec_text(start=PAST))
+    lab.write("mouse-diet.yaml", spec_text(start=PAST, status="planned"))
     lab.commit("register", BEFORE)
     digest = _hand_hash(lab.registry / "mouse-diet.yaml")
     _forge(lab, digest=digest, start=PAST, date="2020-03-09T10:00:00+01:00")  # a week after the start
@@ -177,7 +177,7 @@ def test_verify_fails_when_the_tag_is_not_reachable(lab, run):
     first = lab.repo.head()
     lab.write("mouse-diet.yaml", spec_text(start=FUTURE, status="planned"))
     lab.commit("ready", "2020-01-11T10:00:00+01:00")
-    assert run("freeze", "mouse-diet", lab.registry).status == 0
+    assert run("register", "mouse-diet", lab.registry).status == 0
     lab.repo.reset_hard(first)
     lab.write("mouse-diet.yaml", spec_text(start=FUTURE, status="planned", extra="notes: redone\n"))
     lab.commit("ready, rewritten", "2020-01-11T10:00:00+01:00")
@@ -187,7 +187,7 @@ def test_verify_fails_when_the_tag_is_not_reachable(lab, run):
 
 
 def test_verify_fails_on_a_shallow_clone(lab, run, tmp_path):
-    assert run("freeze", "mouse-diet", lab.registry).status == 0
+    assert run("register", "mouse-diet", lab.registry).status == 0
     lab.write("mouse-diet.yaml", spec_text(start=FUTURE, status="planned"))
     lab.commit("status", "2020-01-12T10:00:00+01:00")
     clone = lab.repo.clone(tmp_path / "clone", depth=1)
