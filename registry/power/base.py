@@ -17,6 +17,7 @@ from pydantic import BaseModel, ConfigDict, field_validator, model_validator
 
 from .assumptions import PilotSource, SimulationPlan
 from .fields import free, locked, out_of_range
+from .sequential_plan import SEQUENTIAL_FAMILIES, SequentialPlan
 
 __all__ = [
     "Alternative",
@@ -177,6 +178,11 @@ class DesignBase(BaseModel):
         description="Several primary outcomes, any one of which may support the claim: outcomes (k) and "
         "method (bonferroni); each is tested at alpha / k.",
     )
+    sequential: SequentialPlan | None = locked(
+        default=None,
+        description="Interim analyses with stopping boundaries (group-sequential design): looks, efficacy "
+        "spending and futility; n becomes the maximum n (docs/methods.md, sequential designs).",
+    )
 
     @field_validator("alpha", "power")
     @classmethod
@@ -200,6 +206,15 @@ class DesignBase(BaseModel):
             raise ValueError(
                 f"simulation.distribution {self.simulation.distribution!r} is not offered for {self.test}; "
                 f"choose one of {', '.join(self.family.distributions)}"
+            )
+        return self
+
+    @model_validator(mode="after")
+    def _sequential_family(self) -> "DesignBase":
+        if self.sequential is not None and self.test not in SEQUENTIAL_FAMILIES:
+            raise ValueError(
+                f"sequential applies to the families whose test statistic is normal or asymptotically normal "
+                f"({', '.join(SEQUENTIAL_FAMILIES)}); {self.test} is not one of them"
             )
         return self
 

@@ -1,0 +1,163 @@
+"""Group-sequential designs in ``check``: the maximum n, and recorded interim looks against the plan.
+
+A spec with ``design.sequential`` is sized for its maximum n. Each entry of ``interim_looks``
+(date, information fraction, observed z, decision) is compared with the registered looks and
+with the boundaries recomputed at the information actually reached (the spending-function
+approach of Lan & DeMets 1983 allows looks that fall a little off their planned information).
+A look that was not planned, one moved by more than :data:`LOOK_TOLERANCE` in information, one
+before the start of data collection, a look after a decision to stop, or a crossed boundary
+without the matching decision is ``look-off-plan`` (an error), unless an amendment lists
+``interim_looks`` or ``design.sequential``.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import TYPE_CHECKING, Any
+
+from .power import InfeasibleDesign
+from .power.sequential import InvalidSequential, group_sequential
+from .power.sequential_size import apply_to_sample, direction, size_sequential
+
+if TYPE_CHECKING:
+    from .checks import SpecReport
+    from .model import Spec
+    from .power.base import DesignBase
+
+__all__ = ["size_for_check", "check_looks", "LOOK_TOLERANCE"]
+
+#: How far (in information fraction) a recorded look may fall from its planned fraction.
+LOOK_TOLERANCE = 0.05
+
+
+def size_for_check(report: "SpecReport", design: "DesignBase") -> bool:
+    """Replace the fixed sample size of ``report`` by the maximum n; False if it cannot be computed."""
+    try:
+        size = size_sequential(design, report.sample)
+    except InfeasibleDesign as error:
+        report.add("invalid", "error", error.field, error.message, tuple(error.field.split(".")))
+        report.sample = None
+        return False
+    report.sequential = size
+    report.sample = apply_to_sample(report.sample, size, design)
+    plan = size.plan
+    unit = design.family.unit
+    looks = ", ".join(str(n) for n in size.look_n_per_group)
+    events = f"; events at the looks {', '.join(map(str, size.look_events))}" if size.look_events else ""
+    report.add(
+        "sequential-design", "info", "design.sequential",
+        f"{design.sequential.describe()}: maximum {size.max_n_per_group} analysable {unit} (fixed design "
+        f"{size.fixed_n_per_group}, inflation {plan.inflation:.4f}); looks at {looks} {unit}{events}; expected "
+        f"{size.expected_n_alternative:.1f} under the alternative ({size.savings('alternative'):.0%} fewer than the "
+        f"fixed design) and {size.expected_n_null:.1f} under the null; efficacy boundaries z = "
+        f"{', '.join(f'{b:.3f}' for b in plan.efficacy)}", ("design", "sequential"),
+    )
+    return True
+
+
+def _amended(spec: "Spec") -> str | None:
+    for amendment in spec.amendments:
+        if any(f == "interim_looks" or f.startswith("interim_looks") or f.startswith("design.sequential")
+               for f in amendment.fields):
+            return str(amendment.date)
+    return None
+
+
+def check_looks(report: "SpecReport", spec: "Spec") -> None:
+    """Compare ``spec.interim_looks`` with ``design.sequential`` and add the findings to ``report``."""
+    looks = spec.interim_looks
+    if not looks:
+        return
+    amended = _amended(spec)
+
+    def off_plan(message: str, loc: tuple[Any, ...]) -> None:
+        field = ".".join(str(p) for p in loc)
+        if amended:
+            report.add("look-off-plan", "info", field, f"{message}; documented by the amendment of {amended}", loc)
+        else:
+            report.add("look-off-plan", "error", field,
+                       f"{message}; record an amendment listing interim_looks (what changed, why, who approved)", loc)
+
+    design = spec.design
+    seq = design.sequential
+    if seq is None:
+        off_plan(f"{len(looks)} interim look(s) recorded, but design.sequential plans none: a look at the data "
+                 "that the design did not plan changes the type I error", ("interim_looks",))
+        return
+    planned = list(seq.fractions)
+    matched: list[float] = []
+    start = spec.data_collection.start
+    stopped = None
+    for i, look in enumerate(looks):
+        loc = ("interim_looks", i)
+        if look.date < start:
+            off_plan(f"look {i + 1} is dated {look.date}, before data collection started ({start})",
+                     loc + ("date",))
+        if i and look.date < looks[i - 1].date:
+            off_plan(f"look {i + 1} ({look.date}) is dated before look {i} ({looks[i - 1].date})", loc + ("date",))
+        if i and look.information_fraction <= looks[i - 1].information_fraction:
+            off_plan(f"look {i + 1} is at information {look.information_fraction:g}, not beyond look {i} "
+                     f"({looks[i - 1].information_fraction:g})", loc + ("information_fraction",))
+            return
+        if stopped is not None:
+            off_plan(f"look {i + 1} follows the decision {stopped} at look {i}: a stopped study has no further "
+                     "looks", loc)
+        remaining = planned[len(matched):]
+        if not remaining:
+            off_plan(f"look {i + 1} at information {look.information_fraction:g} is one more than the "
+                     f"{len(planned)} registered ({', '.join(f'{t:.3g}' for t in planned)})", loc)
+            return
+        target = remaining[0]
+        if abs(look.information_fraction - target) > LOOK_TOLERANCE:
+            off_plan(f"look {i + 1} is at information {look.information_fraction:g}, but the registered look "
+                     f"{len(matched) + 1} is at {target:.3g} (tolerance {LOOK_TOLERANCE:g})",
+                     loc + ("information_fraction",))
+        matched.append(look.information_fraction)
+        bounds = _bounds_at(design, matched, planned)
+        if bounds is None:
+            continue
+        efficacy, futility, two_sided = bounds
+        k = len(matched) - 1
+        z = look.z * direction(design)
+        crossed_eff = (abs(look.z) if two_sided else z) >= efficacy[k]
+        crossed_fut = futility[k] != -math.inf and z <= futility[k] and not crossed_eff
+        where = (f"look {i + 1} (information {look.information_fraction:g}, z = {look.z:g}; efficacy boundary "
+                 f"{'|z|' if two_sided else 'z'} >= {efficacy[k]:.3f}"
+                 + (f", futility boundary {futility[k]:.3f}" if futility[k] != -math.inf else "") + ")")
+        if look.decision == "continue" and crossed_eff:
+            off_plan(f"{where} crossed the efficacy boundary, but the study went on without a recorded decision "
+                     "to stop", loc + ("decision",))
+        elif look.decision == "continue" and crossed_fut:
+            if seq.futility == "binding":
+                off_plan(f"{where} crossed the binding futility boundary, but the study went on: the efficacy "
+                         "boundaries assume it stops", loc + ("decision",))
+            else:
+                report.add("look-continued", "info", ".".join(map(str, loc)) + ".decision",
+                           f"{where} crossed the non-binding futility boundary and the study went on; the type I "
+                           "error still holds", loc + ("decision",))
+        elif look.decision == "stop-efficacy" and not crossed_eff:
+            off_plan(f"{where}: stopped for efficacy without crossing the efficacy boundary", loc + ("decision",))
+        elif look.decision == "stop-futility" and not crossed_fut and futility[k] != -math.inf:
+            report.add("look-decision", "info", ".".join(map(str, loc)) + ".decision",
+                       f"{where}: stopped for futility above the futility boundary (allowed; it lowers power only)",
+                       loc + ("decision",))
+        if look.decision != "continue":
+            stopped = look.decision
+
+
+def _bounds_at(design: "DesignBase", reached: list[float], planned: list[float]):
+    """Efficacy and futility z boundaries with the reached fractions in place of the planned ones."""
+    seq = design.sequential
+    later = [t for t in planned[len(reached):] if t > reached[-1] + 1e-3]
+    fractions = reached + later
+    fractions[-1] = 1.0  # the last look is the final analysis, wherever its information ended
+    tested = design.as_tested()
+    two_sided = tested.alternative == "two-sided" and seq.futility == "none"
+    alpha = tested.alpha if (tested.alternative != "two-sided" or two_sided) else tested.alpha / 2
+    try:
+        plan = group_sequential(fractions, alpha, tested.power, two_sided=two_sided, efficacy=seq.efficacy,
+                                rho=seq.efficacy_rho, futility=seq.futility, futility_spending=seq.futility_spending,
+                                futility_rho=seq.futility_rho)
+    except InvalidSequential:
+        return None
+    return plan.efficacy, plan.futility_bounds, two_sided
