@@ -24,9 +24,9 @@ Applications to Clinical Trials*. Boca Raton: Chapman & Hall/CRC.
 
 >>> plan = group_sequential((1/3, 2/3, 1), alpha=0.025, power=0.9, efficacy="obrien-fleming")
 >>> [round(b, 3) for b in plan.efficacy]
-[3.710, 2.511, 1.993]
+[3.71, 2.511, 1.993]
 >>> round(plan.inflation, 3)
-1.018
+1.012
 """
 
 from __future__ import annotations
@@ -49,6 +49,7 @@ __all__ = [
     "group_sequential",
     "constant_shape_boundaries",
     "equal_fractions",
+    "drift_for_power",
 ]
 
 SpendingName = Literal["obrien-fleming", "pocock", "power", "haybittle-peto"]
