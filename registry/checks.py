@@ -80,6 +80,7 @@ class SpecReport:
     at_planned: PowerAtN | None = None
     simulated: SimulatedPower | None = None
     sequential: Any = None  # registry.power.sequential_size.SequentialSize with design.sequential
+    assurance: Any = None  # registry.power.assurance.Assurance with design.assurance
     history: Any = None  # registry.history.SpecHistory when the file is in a git repository
     #: The file's lines (printable) when it could not be loaded, so output can still show them.
     source_lines: list[str] = field(default_factory=list)
@@ -135,6 +136,7 @@ class SpecReport:
             "target_power": self.spec.design.power if self.spec else None,
             "simulated_power": self.simulated.to_dict() if self.simulated else None,
             **({"sequential": self.sequential.to_dict()} if self.sequential is not None else {}),
+            **({"assurance": self.assurance.to_dict()} if self.assurance is not None else {}),
             "verdict": self.verdict,
             "findings": [f.to_dict() for f in self.findings],
             **({"history": self.history.summary()} if self.history is not None else {}),
@@ -185,6 +187,10 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
                    f"the sample size could not be computed for these assumptions ({type(error).__name__}: "
                    f"{error}); check that alpha ({spec.design.alpha:g}), power ({spec.design.power:g}) and the "
                    "effect are realistic. If they are, this is a bug in prespec: please report it", ("design",))
+    if spec.design.assurance is not None and report.sample is not None:
+        from .interim import assurance_for_check
+
+        assurance_for_check(report, spec)
     _simulation(report, spec)
     if spec.interim_looks or spec.design.sequential is not None:
         from .interim import check_looks

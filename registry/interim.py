@@ -24,7 +24,7 @@ if TYPE_CHECKING:
     from .model import Spec
     from .power.base import DesignBase
 
-__all__ = ["size_for_check", "check_looks", "LOOK_TOLERANCE"]
+__all__ = ["size_for_check", "check_looks", "assurance_for_check", "LOOK_TOLERANCE"]
 
 #: How far (in information fraction) a recorded look may fall from its planned fraction.
 LOOK_TOLERANCE = 0.05
@@ -161,3 +161,30 @@ def _bounds_at(design: "DesignBase", reached: list[float], planned: list[float])
     except InvalidSequential:
         return None
     return plan.efficacy, plan.futility_bounds, two_sided
+
+
+def assurance_for_check(report: "SpecReport", spec: "Spec") -> None:
+    """Assurance at the planned analysable n (``design.assurance``), beside the power there."""
+    from .power.assurance import design_assurance
+
+    design = spec.design
+    planned = math.floor(spec.sample_size.per_group * (1 - design.attrition) + 1e-9)
+    n = max(planned, design.family.min_n)
+    loc = ("design", "assurance")
+    try:
+        result = design_assurance(design, n)
+    except InfeasibleDesign as error:
+        report.add("invalid", "error", error.field, error.message, tuple(error.field.split(".")))
+        return
+    report.assurance = result
+    unit = design.family.unit
+    text = (f"assurance {result.assurance:.3f} at the planned {n} analysable {unit} (power {result.power:.3f} at the "
+            f"assumed effect and SD); it approaches {result.limit:.3f} as n grows")
+    if result.n_for_target is not None:
+        from .power import enrolment
+
+        text += (f"; assurance {result.target:g} needs {result.n_for_target} analysable {unit} "
+                 f"({enrolment(result.n_for_target, design.attrition)} enrolled)")
+    if design.sequential is not None:
+        text += "; computed for a single analysis at this n (a sequential test has a little less)"
+    report.add("assurance", "info", "design.assurance", text, loc)
