@@ -13,6 +13,7 @@ without the matching decision is ``look-off-plan`` (an error), unless an amendme
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from typing import TYPE_CHECKING, Any
 
 from .power import InfeasibleDesign
@@ -188,3 +189,59 @@ def assurance_for_check(report: "SpecReport", spec: "Spec") -> None:
     if design.sequential is not None:
         text += "; computed for a single analysis at this n (a sequential test has a little less)"
     report.add("assurance", "info", "design.assurance", text, loc)
+
+
+def size_extras(design: "DesignBase", result: Any, n: int | None) -> tuple[Any, list[tuple[str, str]], dict[str, Any]]:
+    """For ``prespec size``: the result with the maximum n (or the sequential power at ``n``), the rows
+    to print for the looks and the assurance, and the JSON keys to add."""
+    from .power import solve_sample_size
+    from .power.assurance import design_assurance
+    from .power.sequential_size import apply_to_power
+
+    rows: list[tuple[str, str]] = []
+    extra: dict[str, Any] = {}
+    if design.sequential is not None:
+        fixed = solve_sample_size(design) if n is not None else result
+        size = size_sequential(design, fixed)
+        plan = size.plan
+        if n is None:
+            result = apply_to_sample(result, size, design)
+        else:  # the boundaries are those of the plan; the looks fall at fractions of the given n
+            result = apply_to_power(result, size)
+            looks = tuple(max(design.family.min_n, math.ceil(t * n - 1e-9)) for t in plan.fractions)
+            size = replace(size, max_n_per_group=n, look_n_per_group=looks[:-1] + (n,), look_events=None)
+        extra["sequential"] = size.to_dict()
+        rows.append(("sequential", f"{design.sequential.describe()}; inflation {plan.inflation:.4f} over the fixed "
+                                   f"design's {size.fixed_n_per_group}"))
+        rows.extend(("look", line) for line in boundary_lines(design, size))
+        if n is None:
+            rows.append(("expected n", f"{size.expected_n_alternative:.1f} {design.family.unit} under the "
+                                       f"alternative ({size.savings('alternative'):.0%} fewer than the fixed "
+                                       f"design), {size.expected_n_null:.1f} under the null"))
+    if design.assurance is not None:
+        got = design_assurance(design, result.n_per_group)
+        extra["assurance"] = got.to_dict()
+        text = f"{got.assurance:.4f} at this n (limit {got.limit:.3f} as n grows)"
+        if got.n_for_target is not None:
+            text += f"; assurance {got.target:g} needs {got.n_for_target} {design.family.unit}"
+        rows.append(("assurance", text))
+    return result, rows, extra
+
+
+def boundary_lines(design: "DesignBase", size: Any) -> list[str]:
+    """One line per look: information, n, the z boundaries (signed as the test reads them)."""
+    plan = size.plan
+    sign = direction(design)
+    out = []
+    for k, t in enumerate(plan.fractions):
+        b = plan.efficacy[k]
+        eff = f"|z| >= {b:.3f}" if plan.two_sided else (f"z >= {b:.3f}" if sign > 0 else f"z <= {-b:.3f}")
+        a = plan.futility_bounds[k]
+        fut = ""
+        if a != -math.inf and k + 1 < plan.looks:
+            fut = f"; futility {'z <= ' if sign > 0 else 'z >= '}{sign * a:.3f}"
+        events = f", {size.look_events[k]} events" if size.look_events else ""
+        out.append(f"{k + 1}: information {t:.3g}, n {size.look_n_per_group[k]}{events}; efficacy {eff}{fut}; "
+                   f"stop probability at the maximum n {plan.stopping('alternative')[k]:.3f} (alternative), "
+                   f"{plan.stopping('null')[k]:.4f} (null)")
+    return out

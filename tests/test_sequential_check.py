@@ -194,3 +194,49 @@ def test_log_rank_inflates_the_events():
     assert fixed.events == math.ceil(4 * (1.959964 + 0.841621) ** 2 / math.log(0.6) ** 2) == 121
     assert size.max_events == math.ceil(size.inflation * 121)
     assert size.look_events[-1] == size.max_events
+
+
+# --- prespec size -----------------------------------------------------------------------------------
+
+def test_size_with_looks_reports_the_maximum_n_and_the_boundaries(run):
+    result = run("size", "two-sample-t", "--d", "0.5", "--looks", "3", "--json")
+    assert result.status == 0
+    payload = result.json()
+    seq = payload["sequential"]
+    # fixed n 64 for d = 0.5 (Cohen 1988 Table 2.4.1, from memory), inflated by the Lan-DeMets
+    # O'Brien-Fleming factor; the boundaries are those tabulated in test_sequential (from memory)
+    assert seq["fixed_n_per_group"] == 64
+    assert payload["n_per_group"] == seq["max_n_per_group"] == math.ceil(seq["inflation"] * 64)
+    assert [round(look["efficacy_z"], 3) for look in seq["looks"]] == [3.710, 2.511, 1.993]
+    human = run("size", "two-sample-t", "--d", "0.5", "--looks", "3")
+    assert "|z| >= 3.710" in human.out and "expected n" in human.out
+
+
+def test_size_with_one_look_is_the_fixed_design(run):
+    fixed = run("size", "two-sample-t", "--d", "0.5", "--json").json()
+    one = run("size", "two-sample-t", "--d", "0.5", "--looks", "1", "--json").json()
+    assert one["n_per_group"] == fixed["n_per_group"] and one["sequential"]["inflation"] == 1.0
+
+
+@pytest.mark.parametrize(
+    "argv, words",
+    [
+        (("--spending", "pocock"), "need --looks"),
+        (("--looks", "0.5,x"), "fractions"),
+        (("--looks", "2", "--spending", "fleming"), "efficacy"),
+        (("--assurance-mean", "0.5"), "both --assurance-mean and --assurance-sd"),
+        (("--looks", "2", "--futility", "binding", "--futility-spending", "haybittle-peto"), "futility_spending"),
+    ],
+)
+def test_size_refuses_bad_sequential_options(run, argv, words):
+    result = run("size", "two-sample-t", "--d", "0.5", *argv)
+    assert result.status == 2
+    assert words in result.err and "Traceback" not in result.err
+
+
+def test_size_reports_assurance_and_the_n_for_a_target(run):
+    result = run("size", "two-sample-t", "--difference", "4", "--sd", "5", "--assurance-mean", "4",
+                 "--assurance-sd", "1.5", "--assurance-df", "11", "--assurance-target", "0.7", "--json")
+    got = result.json()["assurance"]
+    assert got["n_per_group"] == 26 and got["assurance"] < got["power"]
+    assert got["n_for_target"] > 26
