@@ -122,9 +122,13 @@ def check_looks(report: "SpecReport", spec: "Spec") -> None:
         z = look.z * direction(design)
         crossed_eff = (abs(look.z) if two_sided else z) >= efficacy[k]
         crossed_fut = futility[k] != -math.inf and z <= futility[k] and not crossed_eff
+        sign = direction(design)
+        rule = (f"|z| >= {efficacy[k]:.3f}" if two_sided
+                else f"z >= {efficacy[k]:.3f}" if sign > 0 else f"z <= {-efficacy[k]:.3f}")
+        fut_rule = "" if futility[k] == -math.inf else (
+            f", futility boundary z {'<=' if sign > 0 else '>='} {sign * futility[k]:.3f}")
         where = (f"look {i + 1} (information {look.information_fraction:g}, z = {look.z:g}; efficacy boundary "
-                 f"{'|z|' if two_sided else 'z'} >= {efficacy[k]:.3f}"
-                 + (f", futility boundary {futility[k]:.3f}" if futility[k] != -math.inf else "") + ")")
+                 f"{rule}{fut_rule})")
         if look.decision == "continue" and crossed_eff:
             off_plan(f"{where} crossed the efficacy boundary, but the study went on without a recorded decision "
                      "to stop", loc + ("decision",))

@@ -240,3 +240,24 @@ def test_size_reports_assurance_and_the_n_for_a_target(run):
     got = result.json()["assurance"]
     assert got["n_per_group"] == 26 and got["assurance"] < got["power"]
     assert got["n_for_target"] > 26
+
+
+# --- render -----------------------------------------------------------------------------------------
+
+def test_summary_shows_the_boundary_table_figure_and_recorded_looks(tmp_path, run):
+    folder = tmp_path / "registry"
+    folder.mkdir()
+    _write(folder, looks=_looks(("2027-05-01", 0.33, 0.4, "continue"), ("2027-06-01", 0.5, 0.9, "continue")))
+    out = tmp_path / "out"
+    result = run("render", "lesion-volume", "--registry", folder, "--out", out, "--no-history")
+    assert result.status == 0, result.err
+    text = (out / "lesion-volume.md").read_text()
+    # the Lan-DeMets O'Brien-Fleming boundaries of test_sequential (from memory)
+    for bound in ("|z| >= 3.710", "|z| >= 2.511", "|z| >= 1.993"):
+        assert bound in text
+    assert "lesion-volume-boundaries.svg" in text and "Interim looks recorded" in text
+    assert "registered look 2 is at 0.667" in text
+    page = (out / "lesion-volume.html").read_text()
+    assert page.count("<svg") == 2 and "Stopping boundaries" in page
+    svg = (out / "lesion-volume-boundaries.svg").read_text()
+    assert "<desc" in svg and "3.71" in svg
