@@ -584,6 +584,10 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
             for change in changes:
                 if change.locked and after:
                     history.findings.append(_drift_finding(change, commit, started, merge=event.merge))
+            if after and not event.merge:
+                from .interim import looks_rewritten
+
+                history.findings += looks_rewritten(base, new, commit)
         if index == 0 and action == "added" and after and not shallow:
             history.findings.append(Finding(
                 "incomplete-history", "warning", "data_collection.start", None,

@@ -249,3 +249,45 @@ def boundary_lines(design: "DesignBase", size: Any) -> list[str]:
                    f"stop probability at the maximum n {plan.stopping('alternative')[k]:.3f} (alternative), "
                    f"{plan.stopping('null')[k]:.4f} (null)")
     return out
+
+
+def _recorded(snapshot: Any) -> list[Any]:
+    """A version's recorded interim looks as plain values (raw values for an invalid version)."""
+    spec = snapshot.spec
+    if spec is not None:
+        return [look.model_dump(mode="json") for look in spec.interim_looks]
+    data = snapshot.data
+    raw = data.get("interim_looks") if isinstance(data, dict) else None
+    return list(raw) if isinstance(raw, list) else []
+
+
+def looks_rewritten(base: Any, new: Any, commit: Any) -> list[Any]:
+    """``look-off-plan`` findings for a commit that changes or removes an interim look already recorded
+    in ``base`` (records of what happened are appended, never rewritten), unless an amendment added
+    in the same commit lists ``interim_looks``."""
+    from .checks import Finding
+
+    old_looks, new_looks = _recorded(base), _recorded(new)
+    if not old_looks:
+        return []
+    before = {repr(a) for a in base.amendments()}
+    added = [a for a in new.amendments() if repr(a) not in before]
+    if any(isinstance(a.get("fields"), list) and any(isinstance(f, str) and f.startswith("interim_looks")
+                                                     for f in a["fields"]) for a in added):
+        return []
+    out = []
+    when = commit.committer_date.date().isoformat()
+    for i, old in enumerate(old_looks):
+        if i >= len(new_looks):
+            what = "removed"
+        elif new_looks[i] != old:
+            what = "changed"
+        else:
+            continue
+        out.append(Finding(
+            "look-off-plan", "error", f"interim_looks.{i}", None,
+            f"commit {commit.short} ({when}) {what} interim look {i + 1}, recorded earlier "
+            f"(information {old.get('information_fraction') if isinstance(old, dict) else old!r}); a record of an "
+            "interim analysis is appended, not rewritten: restore it, or add an amendment listing interim_looks "
+            "in the same commit"))
+    return out
