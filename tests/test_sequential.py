@@ -262,3 +262,37 @@ def test_simulated_sequential_t_test_at_the_reported_maximum_n(d):
     se = math.sqrt(0.05 * 0.95 / reps)
     assert abs(null.mean() - 0.05) < 3.5 * se
     assert alt.mean() >= 0.8 - 3 * math.sqrt(0.16 / reps)
+
+
+def _sequential_proportions_test(n_max, looks, bounds, p1, p2, reps, rng):
+    """Pooled two-proportion z-tests at each look on accumulating binary outcomes, |z| >= b_k."""
+    x = rng.random((reps, n_max)) < p1
+    y = rng.random((reps, n_max)) < p2
+    cx, cy = np.cumsum(x, axis=1), np.cumsum(y, axis=1)
+    rejected = np.zeros(reps, dtype=bool)
+    going = np.ones(reps, dtype=bool)
+    for n, b in zip(looks, bounds):
+        a, c = cx[:, n - 1] / n, cy[:, n - 1] / n
+        pooled = (a + c) / 2
+        se = np.sqrt(pooled * (1 - pooled) * 2 / n)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z = np.where(se > 0, (c - a) / se, 0.0)
+        hit = going & (np.abs(z) >= b)
+        rejected |= hit
+        going &= ~hit
+    return rejected
+
+
+def test_simulated_sequential_two_proportions_test_at_the_reported_maximum_n():
+    # the lab's test for proportions: the pooled z-test at each look, here with Pocock-type spending
+    params = dict(p1=0.30, p2=0.50, power=0.8)
+    design = design_from_params("two-proportions", sequential={"looks": 3, "efficacy": "pocock"}, **params)
+    size = size_sequential(design, solve_sample_size(design_from_params("two-proportions", **params)))
+    rng = np.random.default_rng(20270304)
+    reps = 40_000
+    null = _sequential_proportions_test(size.max_n_per_group, size.look_n_per_group, size.plan.efficacy,
+                                        0.40, 0.40, reps, rng)
+    alt = _sequential_proportions_test(size.max_n_per_group, size.look_n_per_group, size.plan.efficacy,
+                                       0.30, 0.50, reps, rng)
+    assert abs(null.mean() - 0.05) < 3.5 * math.sqrt(0.05 * 0.95 / reps)
+    assert alt.mean() >= 0.8 - 3 * math.sqrt(0.16 / reps)
