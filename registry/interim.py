@@ -53,6 +53,11 @@ def size_for_check(report: "SpecReport", design: "DesignBase") -> bool:
         f"fixed design) and {size.expected_n_null:.1f} under the null; efficacy boundaries z = "
         f"{', '.join(f'{b:.3f}' for b in plan.efficacy)}", ("design", "sequential"),
     )
+    if design.simulation is not None:
+        report.add("method-note", "info", "design.simulation",
+                   "design.simulation simulates a single analysis at the planned n, not the sequential test; the "
+                   "power it is compared with is the sequential test's, which is a little lower",
+                   ("design", "simulation"))
     return True
 
 

@@ -148,6 +148,8 @@ def test_looks_without_a_sequential_design_are_off_plan(tmp_path, run):
         ("  sequential:\n    looks: 3\n    efficacy: power\n", "efficacy_rho"),
         ("  sequential:\n    looks: [0.5, 0.9]\n", "final analysis at information fraction 1"),
         ("  sequential:\n    looks: 0\n", "from 1 to 20"),
+        ("  sequential:\n    looks: 2.5\n", "a whole number of equally spaced looks"),
+        ("  sequential:\n    looks: [0.5, true]\n", "a list of information fractions"),
         ("  sequential:\n    looks: 3\n    efficacy: fleming\n", "obrien-fleming"),
     ],
 )

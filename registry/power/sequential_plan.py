@@ -65,6 +65,16 @@ class SequentialPlan(BaseModel):
         default=None, description="Exponent rho of the power spending function for futility, above 0."
     )
 
+    @field_validator("looks", mode="before")
+    @classmethod
+    def _looks_shape(cls, value: Any) -> Any:
+        number = lambda x: isinstance(x, (int, float)) and not isinstance(x, bool)  # noqa: E731
+        if (isinstance(value, int) and not isinstance(value, bool)) or (
+                isinstance(value, list) and all(number(x) for x in value)):
+            return [float(x) for x in value] if isinstance(value, list) else value
+        raise ValueError("looks must be a whole number of equally spaced looks (e.g. 3) or a list of information "
+                         f"fractions ending at 1 (e.g. [0.5, 0.75, 1]); got {value!r}")
+
     @field_validator("looks")
     @classmethod
     def _looks(cls, value: int | list[float]) -> int | list[float]:
