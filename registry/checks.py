@@ -190,7 +190,7 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
     if spec.design.assurance is not None and report.sample is not None:
         from .interim import assurance_for_check
 
-        assurance_for_check(report, spec)
+        assurance_for_check(report, spec, spec_file)
     _simulation(report, spec)
     if spec.interim_looks or spec.design.sequential is not None:
         from .interim import check_looks

@@ -173,11 +173,22 @@ def _bounds_at(design: "DesignBase", reached: list[float], planned: list[float])
     return plan.efficacy, plan.futility_bounds, two_sided
 
 
-def assurance_for_check(report: "SpecReport", spec: "Spec") -> None:
-    """Assurance at the planned analysable n (``design.assurance``), beside the power there."""
-    from .power.assurance import design_assurance
+def assurance_for_check(report: "SpecReport", spec: "Spec", spec_file: Any = None) -> None:
+    """Assurance at the planned analysable n (``design.assurance``), beside the power there.
+    ``sd_prior.from_pilot`` reads ``design.pilot`` next to ``spec_file`` (the pilot check reports its problems)."""
+    from .power.assurance import design_assurance, with_pilot
 
     design = spec.design
+    prior = design.assurance.sd_prior
+    if prior is not None and prior.from_pilot:
+        from .pilot import InvalidPilot, PilotMissing, read_pilot
+
+        source = design.pilot
+        try:
+            summary = read_pilot(spec_file.path.parent / source.file, source.column, source.confidence)
+        except (PilotMissing, InvalidPilot, AttributeError):
+            return  # the pilot check names what is wrong with the file
+        design = with_pilot(design, summary.n, summary.sd)
     planned = math.floor(spec.sample_size.per_group * (1 - design.attrition) + 1e-9)
     n = max(planned, design.family.min_n)
     loc = ("design", "assurance")

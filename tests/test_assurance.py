@@ -138,3 +138,43 @@ sample_size:
     assert got["assurance"] == pytest.approx(expected.assurance)
     assert got["n_for_target"] == expected.n_for_target
     assert any(f["kind"] == "assurance" and "assurance 0.7 needs" in f["message"] for f in spec["findings"])
+
+
+def test_sd_prior_from_the_pilot_file(tmp_path, run):
+    # the pilot's 12 values give df 11 and their SD; the result equals the explicit prior with them
+    import hashlib
+
+    values = [48.1, 52.3, 50.2, 47.5, 55.0, 49.9, 51.4, 46.8, 53.7, 50.6, 44.9, 52.8]
+    csv = "speed\n" + "\n".join(str(v) for v in values) + "\n"
+    (tmp_path / "pilot.csv").write_text(csv, encoding="utf-8")
+    digest = hashlib.sha256(csv.encode()).hexdigest()
+    (tmp_path / "gait-speed.yaml").write_text(f"""\
+id: gait-speed
+title: Treadmill training and gait speed in aged mice
+status: draft
+data_collection:
+  start: 2027-03-01
+design:
+  test: two-sample-t
+  effect:
+    difference: 4.0
+    sd: 3.5
+  pilot:
+    file: pilot.csv
+    column: speed
+    sha256: {digest}
+  assurance:
+    sd_prior: {{from_pilot: true}}
+sample_size:
+  per_group: 14
+""", encoding="utf-8")
+    (spec,) = run("check", tmp_path, "--json", "--no-history").json()["specs"]
+    pilot_sd = float(np.std(values, ddof=1))  # numpy, the n - 1 SD (common practice)
+    explicit = design_from_params("two-sample-t", difference=4.0, sd=3.5,
+                                  assurance={"sd_prior": {"df": 11, "sd": pilot_sd}})
+    assert spec["assurance"]["assurance"] == pytest.approx(assurance_of(explicit, 14), rel=1e-12)
+
+
+def test_from_pilot_needs_a_pilot_block():
+    with pytest.raises(InvalidDesign, match="needs design.pilot"):
+        design_from_params("two-sample-t", difference=4.0, sd=5.0, assurance={"sd_prior": {"from_pilot": True}})

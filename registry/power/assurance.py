@@ -32,7 +32,7 @@ from pydantic import BaseModel, ConfigDict, model_validator
 from .fields import locked
 
 __all__ = ["AssurancePlan", "EffectPrior", "SdPrior", "ASSURANCE_FAMILIES", "Assurance", "assurance_of",
-           "integrate", "design_assurance"]
+           "integrate", "design_assurance", "with_pilot"]
 
 #: Families whose effect is a mean difference with an SD (``design.effect`` of the t-tests).
 ASSURANCE_FAMILIES = ("one-sample-t", "paired-t", "two-sample-t")
@@ -55,8 +55,22 @@ class SdPrior(BaseModel):
 
     model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False)
 
-    df: int = locked(ge=1, le=100_000, description="Degrees of freedom of the SD estimate (pilot n - 1), 1 or more.")
+    df: int | None = locked(
+        default=None, ge=1, le=100_000, description="Degrees of freedom of the SD estimate (pilot n - 1), 1 or more."
+    )
     sd: float | None = locked(default=None, gt=0, description="Scale (the pilot SD); by default design.effect.sd.")
+    from_pilot: bool = locked(
+        default=False,
+        description="Take df (n - 1) and sd from the data file of design.pilot, read by check, instead of df.",
+    )
+
+    @model_validator(mode="after")
+    def _df_or_pilot(self) -> "SdPrior":
+        if self.from_pilot and self.df is not None:
+            raise ValueError("give df or from_pilot: true, not both")
+        if not self.from_pilot and self.df is None:
+            raise ValueError("give df (the pilot n - 1) or from_pilot: true (read it from design.pilot)")
+        return self
 
 
 class AssurancePlan(BaseModel):
@@ -144,6 +158,20 @@ class Assurance:
                 "method": self.method}
 
 
+def InfeasibleDesignLater(message: str) -> Exception:  # noqa: N802 - builds the family-layer error lazily
+    from .base import InfeasibleDesign
+
+    return InfeasibleDesign(message, "design.assurance.sd_prior")
+
+
+def with_pilot(design: Any, n: int, sd: float) -> Any:
+    """``design`` with ``sd_prior.from_pilot`` resolved to ``df = n - 1`` and the pilot SD (unless sd is given)."""
+    plan: AssurancePlan = design.assurance
+    prior = plan.sd_prior
+    resolved = SdPrior(df=max(1, n - 1), sd=prior.sd if prior.sd is not None else sd)
+    return design.model_copy(update={"assurance": plan.model_copy(update={"sd_prior": resolved})})
+
+
 def _directional(design: Any) -> Any:
     """The design whose power is the probability of rejecting in the planned direction."""
     if design.alternative != "two-sided":
@@ -164,6 +192,9 @@ def _priors(design: Any) -> tuple[float, float, float, int | None, bool]:
     sd = 1.0 if is_d else effect.sd
     df = None
     if plan.sd_prior is not None:
+        if plan.sd_prior.df is None:
+            raise InfeasibleDesignLater("design.assurance.sd_prior.from_pilot needs the pilot data, which only check "
+                                        "reads; give df (the pilot n - 1) here")
         df = plan.sd_prior.df
         if plan.sd_prior.sd is not None:
             sd = plan.sd_prior.sd

@@ -234,6 +234,8 @@ class DesignBase(BaseModel):
         if self.assurance.sd_prior is not None and getattr(self.effect, "d", None) is not None:
             raise ValueError("assurance.sd_prior needs the effect as difference with sd: with d alone the SD is "
                              "already folded into the effect; give effect_prior in d units instead")
+        if self.assurance.sd_prior is not None and self.assurance.sd_prior.from_pilot and self.pilot is None:
+            raise ValueError("assurance.sd_prior.from_pilot needs design.pilot (the data file the SD comes from)")
         return self
 
     @model_validator(mode="after")
