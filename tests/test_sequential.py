@@ -296,3 +296,18 @@ def test_simulated_sequential_two_proportions_test_at_the_reported_maximum_n():
                                        0.30, 0.50, reps, rng)
     assert abs(null.mean() - 0.05) < 3.5 * math.sqrt(0.05 * 0.95 / reps)
     assert alt.mean() >= 0.8 - 3 * math.sqrt(0.16 / reps)
+
+
+@pytest.mark.parametrize("efficacy, futility, spending, rho",
+                         [("haybittle-peto", "binding", "power", 2.0), ("pocock", "non-binding", "obrien-fleming", None)])
+def test_unequal_looks_with_futility_hold_level_and_power(efficacy, futility, spending, rho):
+    # information-based looks at unequal fractions; level from scipy's multivariate normal (Genz)
+    fractions = (0.3, 0.55, 1.0)
+    plan = group_sequential(fractions, 0.025, 0.8, efficacy=efficacy, futility=futility,
+                            futility_spending=spending, futility_rho=rho)
+    lows = list(plan.futility_bounds) if futility == "binding" else [-np.inf] * 3
+    # P(reject) = sum_k P(a_j < Z_j < b_j for j < k, Z_k >= b_k)
+    level = sum(_mvn_continue(fractions[:k + 1], lows[:k] + [plan.efficacy[k]], list(plan.efficacy[:k]) + [np.inf],
+                              0.0) for k in range(3))
+    assert level == pytest.approx(0.025, abs=2e-6)
+    assert plan.achieved_power == pytest.approx(0.8, abs=1e-6)
