@@ -263,3 +263,17 @@ def test_summary_shows_the_boundary_table_figure_and_recorded_looks(tmp_path, ru
     assert page.count("<svg") == 2 and "Stopping boundaries" in page
     svg = (out / "lesion-volume-boundaries.svg").read_text()
     assert "<desc" in svg and "3.71" in svg
+
+
+def test_summary_reports_assurance(tmp_path, run):
+    folder = tmp_path / "registry"
+    folder.mkdir()
+    path = _write(folder)
+    path.write_text(path.read_text().replace(
+        "    efficacy: obrien-fleming\n",
+        "    efficacy: obrien-fleming\n  assurance:\n    effect_prior: {mean: 6.0, sd: 2.0}\n    sd_prior: {df: 9}\n"))
+    (spec,) = run("check", folder, "--json", "--no-history").json()["specs"]
+    out = tmp_path / "out"
+    assert run("render", "lesion-volume", "--registry", folder, "--out", out, "--no-history").status == 0
+    text = (out / "lesion-volume.md").read_text()
+    assert f"is {spec['assurance']['assurance']:.3f}" in text and "**Assurance.**" in text
