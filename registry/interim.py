@@ -71,6 +71,14 @@ def _amended(spec: "Spec") -> str | None:
 
 def check_looks(report: "SpecReport", spec: "Spec") -> None:
     """Compare ``spec.interim_looks`` with ``design.sequential`` and add the findings to ``report``."""
+    try:
+        _check_looks(report, spec)
+    except (InfeasibleDesign, InvalidSequential) as error:
+        report.add("invalid", "error", "interim_looks",
+                   f"the recorded interim looks could not be compared with the plan: {error}", ("interim_looks",))
+
+
+def _check_looks(report: "SpecReport", spec: "Spec") -> None:
     looks = spec.interim_looks
     if not looks:
         return

@@ -5,6 +5,7 @@ computes the boundaries, :mod:`registry.power.sequential_size` the maximum n."""
 from __future__ import annotations
 
 import math
+import re
 from datetime import date
 from typing import Annotated, Any, Literal
 
@@ -132,11 +133,11 @@ class SequentialPlan(BaseModel):
 def _iso_date(value: Any) -> Any:
     if isinstance(value, date):
         return value
-    if isinstance(value, str):
+    if isinstance(value, str) and re.match(r"^\d{4}-\d{2}-\d{2}$", value.strip()):
         try:
             return date.fromisoformat(value.strip())
-        except ValueError:
-            pass
+        except ValueError as exc:
+            raise ValueError(f"{value!r} is not a real calendar date ({exc})") from None
     raise ValueError(f"must be a date written YYYY-MM-DD (ISO 8601), e.g. 2027-03-01; got {value!r}")
 
 
