@@ -242,6 +242,9 @@ def size_extras(design: "DesignBase", result: Any, n: int | None) -> tuple[Any, 
         rows.append(("sequential", f"{design.sequential.describe()}; inflation {plan.inflation:.4f} over the fixed "
                                    f"design's {size.fixed_n_per_group}"))
         rows.extend(("look", line) for line in boundary_lines(design, size))
+        if n is not None:
+            rows.append(("note", "the power above is the sequential test's; the detectable effect is that of a "
+                                 "single analysis at this n"))
         if n is None:
             rows.append(("expected n", f"{size.expected_n_alternative:.1f} {design.family.unit} under the "
                                        f"alternative ({size.savings('alternative'):.0%} fewer than the fixed "

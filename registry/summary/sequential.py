@@ -60,7 +60,9 @@ def staged_markdown(report: SpecReport) -> str:
             f"real ({size.savings('alternative'):.0%} fewer than the fixed design) and {size.expected_n_null:.1f} if "
             f"there is no effect. Boundaries computed by recursive numerical integration (Armitage, McPherson & "
             f"Rowe 1969) of the {'two-sided' if plan.two_sided else 'one-sided'} normal-theory statistic; "
-            "each look's test is run at the nominal level of its boundary.")
+            "each look's test is run at the nominal level of its boundary. The minimum detectable effect, the "
+            "sensitivity table and the power curve above are those of a single analysis at each n; the required n "
+            "marked there is the maximum n.")
         header = ["Look", "Information", f"n ({md.cell(unit)})", "Efficacy z", "Efficacy estimate",
                   "Futility z", "Cumulative alpha", "P(stop), effect", "P(stop), no effect"]
         rows = []
