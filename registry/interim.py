@@ -53,6 +53,16 @@ def size_for_check(report: "SpecReport", design: "DesignBase") -> bool:
         f"fixed design) and {size.expected_n_null:.1f} under the null; efficacy boundaries z = "
         f"{', '.join(f'{b:.3f}' for b in plan.efficacy)}", ("design", "sequential"),
     )
+    looks_n = size.look_n_per_group
+    if any(b <= a for a, b in zip(looks_n, looks_n[1:])):
+        report.add("approximate-size", "warning", "design.sequential.looks",
+                   f"two looks fall at the same n ({', '.join(map(str, looks_n))} {unit}): with so few units the "
+                   "planned information fractions cannot be kept; plan fewer looks", ("design", "sequential", "looks"))
+    elif design.test.endswith("-t") and looks_n[0] < 5:
+        report.add("approximate-size", "warning", "design.sequential.looks",
+                   f"the first look analyses {looks_n[0]} {unit}: the boundaries are derived for a normal statistic "
+                   "and a t-test on so few units may not keep the level; simulate the plan or look later",
+                   ("design", "sequential", "looks"))
     if design.simulation is not None:
         report.add("method-note", "info", "design.simulation",
                    "design.simulation simulates a single analysis at the planned n, not the sequential test; the "

@@ -277,3 +277,14 @@ def test_summary_reports_assurance(tmp_path, run):
     assert run("render", "lesion-volume", "--registry", folder, "--out", out, "--no-history").status == 0
     text = (out / "lesion-volume.md").read_text()
     assert f"is {spec['assurance']['assurance']:.3f}" in text and "**Assurance.**" in text
+
+
+def test_a_first_look_on_very_few_units_is_warned(tmp_path, run):
+    path = _write(tmp_path)
+    path.write_text(path.read_text().replace("    difference: 6.0\n", "    difference: 16.0\n")
+                    .replace("    looks: 3\n", "    looks: [0.2, 0.6, 1]\n").replace("per_group: 46", "per_group: 9"))
+    status, spec = _spec(run, tmp_path)
+    # d = 1.6: a fixed design of about 8 per group (Cohen 1988 Table 2.4.1, from memory); a first look at
+    # a fifth of the maximum analyses 2 per group
+    assert spec["sequential"]["looks"][0]["n_per_group"] < 5
+    assert any(f["kind"] == "approximate-size" and "first look" in f["message"] for f in spec["findings"])
