@@ -80,6 +80,8 @@ class SpecReport:
     sample: SampleSize | None = None
     at_planned: PowerAtN | None = None
     simulated: SimulatedPower | None = None
+    sequential: Any = None  # registry.power.sequential_size.SequentialSize with design.sequential
+    assurance: Any = None  # registry.power.assurance.Assurance with design.assurance
     history: Any = None  # registry.history.SpecHistory when the file is in a git repository
     #: The file's lines (printable) when it could not be loaded, so output can still show them.
     source_lines: list[str] = field(default_factory=list)
@@ -134,6 +136,8 @@ class SpecReport:
             "achieved_power": self.achieved_power,
             "target_power": self.spec.design.power if self.spec else None,
             "simulated_power": self.simulated.to_dict() if self.simulated else None,
+            **({"sequential": self.sequential.to_dict()} if self.sequential is not None else {}),
+            **({"assurance": self.assurance.to_dict()} if self.assurance is not None else {}),
             "verdict": self.verdict,
             "findings": [f.to_dict() for f in self.findings],
             **({"history": self.history.summary()} if self.history is not None else {}),
@@ -184,7 +188,15 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
                    f"the sample size could not be computed for these assumptions ({type(error).__name__}: "
                    f"{error}); check that alpha ({spec.design.alpha:g}), power ({spec.design.power:g}) and the "
                    "effect are realistic. If they are, this is a bug in prespec: please report it", ("design",))
+    if spec.design.assurance is not None and report.sample is not None:
+        from .interim import assurance_for_check
+
+        assurance_for_check(report, spec, spec_file)
     _simulation(report, spec)
+    if spec.interim_looks or spec.design.sequential is not None:
+        from .interim import check_looks
+
+        check_looks(report, spec)
     _pilot(report, spec, spec_file)
     _completeness(report, spec)
     _template_text(report, spec)
@@ -204,6 +216,11 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
         loc = tuple(error.field.split("."))
         report.add("invalid", "error", error.field, error.message, loc)
         return
+    if design.sequential is not None:
+        from .interim import size_for_check
+
+        if not size_for_check(report, design):
+            return
     sample = report.sample
     family = design.family
     for doubt in family.doubts(design):
@@ -216,6 +233,10 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
     unit = family.unit if family.unit != "per group" else "per group"
     if analysable >= family.min_n:
         report.at_planned = power_at(design, analysable)
+        if report.sequential is not None:
+            from .power.sequential_size import apply_to_power
+
+            report.at_planned = apply_to_power(report.at_planned, report.sequential)
     required = sample.enrolment_per_group
     after = f" ({analysable} analysable after {design.attrition:.0%} attrition)" if design.attrition else ""
     if planned < required:

@@ -598,6 +598,10 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
                         drifts[(len(history.revisions), change.field)] = finding
             if after and base is not None and new is not None:
                 later.append((len(history.revisions), commit, _added_amendments(base, new, parents[1:])))
+            if after and not event.merge:
+                from .interim import looks_rewritten
+
+                history.findings += looks_rewritten(base, new, commit)
         if index == 0 and action == "added" and after and not shallow:
             history.findings.append(Finding(
                 "incomplete-history", "warning", "data_collection.start", None,

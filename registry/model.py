@@ -15,6 +15,7 @@ from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, field_valida
 
 from .power.base import MAX_N, free, locked
 from .power.catalog import DesignUnion
+from .power.sequential_plan import InterimLook
 
 __all__ = [
     "Spec",
@@ -160,6 +161,11 @@ class Spec(_Strict):
     randomisation: Text | None = locked(default=None, description="How units are allocated to groups.")
     blinding: Text | None = locked(default=None, description="Who is blinded to allocation, and how.")
     stopping_rule: Text | None = locked(default=None, description="When data collection stops (fixed n, interim rules).")
+    interim_looks: list[InterimLook] = free(
+        default_factory=list, max_length=100,
+        description="Interim analyses as they happened (date, information_fraction, z, decision); check compares "
+        "them with design.sequential (docs/methods.md, sequential designs).",
+    )
     amendments: list[Amendment] = free(default_factory=list, description="Documented changes after data collection started.")
     contacts: list[Contact] = free(default_factory=list, description="People responsible for the experiment.")
     notes: Text | None = free(default=None, description="Free notes.")

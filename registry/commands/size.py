@@ -44,7 +44,7 @@ _EFFECT_OPTIONS: tuple[tuple[str, str, str, str], ...] = (
     ("--hr", "hr", "number", "hazard ratio"),
 )
 _DESIGN_LABELS = {"alpha", "power", "alternative", "allocation_ratio", "attrition", "test", "effect", "simulation",
-                  "pilot", "effect_rationale", "variability_source"}
+                  "pilot", "effect_rationale", "variability_source", "sequential", "assurance"}
 _SIMULATION_FIELDS = set(SimulationPlan.model_fields) - {"reps", "seed", "distribution"}
 _INT_RE = re.compile(r"^[-+]?\d+$")
 
@@ -124,6 +124,26 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     design.add_argument("--n", type=_whole, default=None, metavar="N",
                         help="report the power at N analysable units per group and the smallest detectable "
                         "effect there, instead of the sample size")
+    seq = parser.add_argument_group("interim looks and assurance (design.sequential, design.assurance)")
+    seq.add_argument("--looks", type=_looks, default=None, metavar="K|T1,T2,...",
+                     help="analyses including the final one: a number of equally spaced looks, or information "
+                     "fractions ending at 1 (e.g. 0.5,0.75,1); n becomes the maximum n")
+    seq.add_argument("--spending", default=None, metavar="FUNCTION",
+                     help="efficacy spending: obrien-fleming (default), pocock, power (with --param "
+                     "sequential.efficacy_rho=R) or haybittle-peto")
+    seq.add_argument("--futility", choices=("none", "binding", "non-binding"), default=None,
+                     help="futility boundaries (default none)")
+    seq.add_argument("--futility-spending", default=None, metavar="FUNCTION",
+                     help="type II error spending of the futility boundaries: obrien-fleming (default), pocock, power")
+    seq.add_argument("--assurance-mean", type=_number, default=None, metavar="M",
+                     help="prior mean of the effect (its units: difference, or d)")
+    seq.add_argument("--assurance-sd", type=_number, default=None, metavar="S", help="prior SD of the effect")
+    seq.add_argument("--assurance-df", type=_whole, default=None, metavar="DF",
+                     help="uncertain SD: degrees of freedom of its estimate (pilot n - 1)")
+    seq.add_argument("--assurance-scale", type=_number, default=None, metavar="SD",
+                     help="uncertain SD: the pilot SD (default --sd)")
+    seq.add_argument("--assurance-target", type=_number, default=None, metavar="A",
+                     help="also find the n whose assurance reaches A")
     sim = parser.add_argument_group("simulation")
     sim.add_argument("--simulate", type=_whole, nargs="?", const=DEFAULT_REPS, default=None, metavar="REPS",
                      help=f"also estimate the power by simulating REPS experiments (default {DEFAULT_REPS:,})")
@@ -150,6 +170,7 @@ def run(args: argparse.Namespace) -> int:
             if name in params:
                 raise UsageError(f"{name} is given both as --{name} and as --param; give it once")
             params[name] = value
+    _staged_params(args, params)
     simulate = args.simulate
     if simulate is not None and not 100 <= simulate <= MAX_REPS:
         raise UsageError(f"--simulate REPS must be between 100 and {MAX_REPS:,}; got {simulate}")
@@ -157,6 +178,42 @@ def run(args: argparse.Namespace) -> int:
         simulate = DEFAULT_REPS  # --seed or --distribution alone ask for a simulation
     return size(args.test, params, n=args.n, as_json=args.json, simulate=simulate, seed=args.seed,
                 distribution=args.distribution)
+
+
+def _looks(text: str) -> int | list[float]:
+    if _INT_RE.match(text.strip()):
+        return int(text)
+    try:
+        return [float(part) for part in text.split(",")]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a number of looks or fractions like 0.5,1; got {text!r}") from None
+
+
+def _staged_params(args: argparse.Namespace, params: dict[str, Any]) -> None:
+    """The --looks/--spending/--futility and --assurance-* options as design.sequential / design.assurance."""
+    for option, name in (("looks", "looks"), ("spending", "efficacy"), ("futility", "futility"),
+                         ("futility_spending", "futility_spending")):
+        value = getattr(args, option)
+        if value is not None:
+            params[f"sequential.{name}"] = value
+    if any(f"sequential.{k}" in params for k in ("efficacy", "futility", "futility_spending")) \
+            and "sequential.looks" not in params:
+        raise UsageError("--spending and --futility need --looks (the number of analyses or their fractions)")
+    block: dict[str, Any] = {}
+    if args.assurance_mean is not None or args.assurance_sd is not None:
+        if args.assurance_mean is None or args.assurance_sd is None:
+            raise UsageError("give both --assurance-mean and --assurance-sd (the normal prior of the effect)")
+        block["effect_prior"] = {"mean": args.assurance_mean, "sd": args.assurance_sd}
+    if args.assurance_df is not None:
+        block["sd_prior"] = {"df": args.assurance_df}
+        if args.assurance_scale is not None:
+            block["sd_prior"]["sd"] = args.assurance_scale
+    elif args.assurance_scale is not None:
+        raise UsageError("--assurance-scale needs --assurance-df (the degrees of freedom of the SD estimate)")
+    if args.assurance_target is not None:
+        block["target"] = args.assurance_target
+    if block:
+        params["assurance"] = block
 
 
 def _nest(params: dict[str, Any]) -> dict[str, Any]:
@@ -208,6 +265,15 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
     except InfeasibleDesign as error:
         where = f" ({error.field})" if error.field != "design" else ""
         raise UsageError(f"the {test} design has no answer{where}: {error.message}") from None
+    staged_rows: list[tuple[str, str]] = []
+    staged: dict[str, Any] = {}
+    if design.sequential is not None or design.assurance is not None:
+        from ..interim import size_extras
+
+        try:
+            result, staged_rows, staged = size_extras(design, result, n)
+        except InfeasibleDesign as error:
+            raise UsageError(f"the {test} design has no answer ({error.field}): {error.message}") from None
     sim = None
     if design.simulation is not None:
         try:
@@ -218,10 +284,11 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
     if as_json:
         payload = result.to_dict()
         payload["simulation"] = sim.to_dict() if sim else None
+        payload.update(staged)
         payload["caution"] = CAUTION
         print(json.dumps(payload, indent=2, ensure_ascii=False))
     else:
-        _print_human(design, result, sim)
+        _print_human(design, result, sim, staged_rows)
     return 0
 
 
@@ -280,7 +347,8 @@ def _sizes(sizes: tuple[int, ...], unit: str) -> str:
         (" + ..." if len(sizes) > 2 else "") + ")"
 
 
-def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: SimulatedPower | None) -> None:
+def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: SimulatedPower | None,
+                 staged_rows: list[tuple[str, str]] = ()) -> None:
     family = design.family
     out = console()
     rows: list[tuple[str, str]] = []
@@ -307,6 +375,7 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
     if sim is not None:
         rows.append(("simulated", f"{sim.power:.4f} ± {sim.standard_error:.4f} (SE; {sim.reps:,} simulated "
                      f"experiments, {sim.distribution} outcome, seed {sim.seed})"))
+    rows.extend(staged_rows)
     rows.append(("method", family.method))
     rows.append(("reference", family.reference))
     for note in result.notes:
@@ -321,4 +390,6 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
 
 
 def _kind(design: DesignBase) -> str:
+    if design.sequential is not None and design.sequential.count > 1:
+        return "group-sequential test, boundaries by numerical integration of the normal-theory statistic"
     return "exact" if design.family.exact else "normal approximation"

@@ -17,6 +17,8 @@ from pydantic import BaseModel, ConfigDict, field_validator, model_validator
 
 from .assumptions import PilotSource, SimulationPlan
 from .fields import free, locked, out_of_range
+from .assurance import ASSURANCE_FAMILIES, AssurancePlan
+from .sequential_plan import SEQUENTIAL_FAMILIES, SequentialPlan
 
 __all__ = [
     "Alternative",
@@ -177,6 +179,16 @@ class DesignBase(BaseModel):
         description="Several primary outcomes, any one of which may support the claim: outcomes (k) and "
         "method (bonferroni); each is tested at alpha / k.",
     )
+    sequential: SequentialPlan | None = locked(
+        default=None,
+        description="Interim analyses with stopping boundaries (group-sequential design): looks, efficacy "
+        "spending and futility; n becomes the maximum n (docs/methods.md, sequential designs).",
+    )
+    assurance: AssurancePlan | None = locked(
+        default=None,
+        description="Priors for the effect (effect_prior: mean, sd) and the SD (sd_prior: df, sd) and an optional "
+        "target: check reports the probability of success averaged over them (docs/methods.md, assurance).",
+    )
 
     @field_validator("alpha", "power")
     @classmethod
@@ -201,6 +213,29 @@ class DesignBase(BaseModel):
                 f"simulation.distribution {self.simulation.distribution!r} is not offered for {self.test}; "
                 f"choose one of {', '.join(self.family.distributions)}"
             )
+        return self
+
+    @model_validator(mode="after")
+    def _sequential_family(self) -> "DesignBase":
+        if self.sequential is not None and self.test not in SEQUENTIAL_FAMILIES:
+            raise ValueError(
+                f"sequential applies to the families whose test statistic is normal or asymptotically normal "
+                f"({', '.join(SEQUENTIAL_FAMILIES)}); {self.test} is not one of them"
+            )
+        return self
+
+    @model_validator(mode="after")
+    def _assurance_family(self) -> "DesignBase":
+        if self.assurance is None:
+            return self
+        if self.test not in ASSURANCE_FAMILIES:
+            raise ValueError(f"assurance applies to the mean-difference families ({', '.join(ASSURANCE_FAMILIES)}); "
+                             f"{self.test} is not one of them")
+        if self.assurance.sd_prior is not None and getattr(self.effect, "d", None) is not None:
+            raise ValueError("assurance.sd_prior needs the effect as difference with sd: with d alone the SD is "
+                             "already folded into the effect; give effect_prior in d units instead")
+        if self.assurance.sd_prior is not None and self.assurance.sd_prior.from_pilot and self.pilot is None:
+            raise ValueError("assurance.sd_prior.from_pilot needs design.pilot (the data file the SD comes from)")
         return self
 
     @model_validator(mode="after")

@@ -5,7 +5,7 @@ This package builds the texts; ``registry/commands/render.py`` finds the specs a
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from datetime import datetime
 from pathlib import Path
 
@@ -29,10 +29,12 @@ class Summary:
     html: str
     svg: str
     provenance: Provenance
+    #: Further figures by file name (the boundary figure of a group-sequential design).
+    figures: dict[str, str] = field(default_factory=dict)
 
     def files(self) -> dict[str, str]:
         return {f"{self.spec_id}.md": self.markdown, f"{self.spec_id}.html": self.html,
-                figure_name(self.spec_id): self.svg}
+                figure_name(self.spec_id): self.svg, **self.figures}
 
 
 def build_summary(report: SpecReport, spec_path: Path, rendered_at: datetime, *, index_link: bool = False) -> Summary:
@@ -50,10 +52,18 @@ def build_summary(report: SpecReport, spec_path: Path, rendered_at: datetime, *,
                           planned=shown_planned, unit=design.family.unit, figure_id=f"{spec.id}-power")
     body = insert_figure(markdown_to_html(markdown), figure_name(spec.id), figure_alt(spec.id),
                          inline_svg(figure), figure.description)
+    figures: dict[str, str] = {}
+    if report.sequential is not None:
+        from .sequential import _alt, boundary_figure, boundary_figure_name
+
+        bounds = boundary_figure(report)
+        name = boundary_figure_name(spec.id)
+        body = insert_figure(body, name, _alt(spec.id), inline_svg(bounds), bounds.description)
+        figures[name] = bounds.svg
     nav = '<nav aria-label="Registry"><a href="index.html">All summaries</a></nav>\n' if index_link else ""
     html = page(title=f"{spec.title} ({spec.id}): design summary", body=body, rendered_at=iso_utc(rendered_at),
                 tool_version=__version__, caution=CAUTION, nav=nav)
-    return Summary(spec.id, markdown, html, figure.svg, prov)
+    return Summary(spec.id, markdown, html, figure.svg, prov, figures)
 
 
 def build_index(rows: list[IndexRow], rendered_at: datetime) -> tuple[str, str]:

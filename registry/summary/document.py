@@ -566,6 +566,11 @@ def summary_markdown(report: SpecReport, prov: Provenance) -> str:
         "guidelines": _guidelines(report),
         "provenance": _provenance(prov),
     }
+    if report.sequential is not None or report.assurance is not None or spec.interim_looks:
+        from .sequential import assurance_markdown, staged_markdown
+
+        values["stopping_rule"] += staged_markdown(report)
+        values["size_table"] += assurance_markdown(report)
     return _template("summary.md").substitute(values)
 
 
