@@ -293,8 +293,11 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
     if result.events is not None:
         rows.append(("events", f"{result.events:,}"))
     if isinstance(result, SampleSize):
-        rows.append(("power", f"{result.achieved_power:.4f} ({_kind(design)}; the smallest n reaching "
+        rows.append(("power", f"{result.achieved_power:.4f} ({_label(result)}; the smallest n reaching "
                               f"{result.target_power:g})"))
+        if result.start_n is not None:
+            rows.append(("start", f"n = {result.start_n:,} per group from the {result.start_method}, "
+                                  "where the search began"))
     else:
         rows.append(("power", f"{result.power:.4f} ({_kind(design)})"))
         if result.minimum_detectable_effect is None:
@@ -321,4 +324,13 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
 
 
 def _kind(design: DesignBase) -> str:
-    return "exact" if design.family.exact else "normal approximation"
+    return design.family.label(design.as_tested())
+
+
+def _label(result: SampleSize) -> str:
+    """The method label of a sample size, with the Monte Carlo facts when it was simulated."""
+    sim = result.verification
+    if sim is None:
+        return result.label
+    return (f"{result.label}: {sim['reps']:,} simulated experiments per n, seed {sim['seed']}, Monte Carlo "
+            f"standard error {sim['standard_error']:.4f}")

@@ -279,6 +279,9 @@ class Family(ABC):
     exact: ClassVar[bool] = True
     #: Whether power never decreases with n (False for exact discrete tests).
     monotone: ClassVar[bool] = True
+    #: Non-monotone families: the scan for the settled n starts at this fraction of the formula's
+    #: n (0: at ``min_n``); it moves lower whenever the power there already reaches the target.
+    scan_floor: ClassVar[float] = 0.0
     #: An illustrative ``design.effect`` block for ``prespec new`` templates.
     example: ClassVar[dict[str, Any]] = {}
     #: Set by the catalog: the spec's design model for this family.
@@ -337,6 +340,16 @@ class Family(ABC):
     def notes(self, design: DesignBase) -> tuple[str, ...]:
         """Family-specific caveats carried into the results."""
         return ()
+
+    def formula(self, design: DesignBase) -> str | None:
+        """The published approximate formula the search starts from, when the reported n is not the
+        formula's own (exact enumeration or simulation); None when :meth:`power` is the method itself."""
+        return None
+
+    def label(self, design: DesignBase) -> str:
+        """How the reported power is obtained: ``exact``, ``exact for fixed predictors``, ``normal
+        approximation`` or ``simulation`` (the last is set by the simulation-verified search)."""
+        return "exact" if self.exact else "normal approximation"
 
     def doubts(self, design: DesignBase) -> tuple[str, ...]:
         """Reasons to distrust this design's computed size (check reports them as warnings)."""

@@ -223,6 +223,9 @@ def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> S
         individual_n_per_group=n_individual if design.cluster is not None else None,
         cluster_size=design.cluster.size if design.cluster is not None else None,
         clusters_per_group=clusters,
+        label=family.label(tested),
+        start_n=math.ceil(start - 1e-9) if family.formula(tested) is not None else None,
+        start_method=family.formula(tested),
     )
 
 
@@ -237,10 +240,14 @@ def _settled_n(family: Family, design: DesignBase, es: float, start: float) -> t
     high = design.model_copy(update={"power": 1 - (1 - design.power) / 4})
     bound = int(min(max(family.approximate_n(high, es), 2 * start, family.min_n + 64), _SCAN_LIMIT)) + 1
     power_of = lambda n: family.power(design, n, es)  # noqa: E731
-    n, first, scanned = smallest_n_from_which(power_of, design.power, bound, family.min_n)
+    lo = max(family.min_n, math.floor(family.scan_floor * start))
+    while lo > family.min_n and float(power_of(np.array([lo]))[0]) >= design.power:
+        lo = max(family.min_n, lo // 2)  # the floor must lie where power is still below the target
+    n, first, scanned = smallest_n_from_which(power_of, design.power, bound, lo)
     achieved = float(power_of(np.array([n]))[0])
+    checked = f"{lo:,} to {scanned:,}" if lo > family.min_n else f"up to {scanned:,}"
     note = (f"exact power is not monotone in n: {n} is the smallest n from which every larger n "
-            f"(checked up to {scanned:,}) reaches the target power")
+            f"(checked {checked}) reaches the target power")
     if first is not None:
         note += (f"; n = {first} already reaches it (power {float(power_of(np.array([first]))[0]):.4f}) "
                  "but some n between fall below")
