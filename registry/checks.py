@@ -153,7 +153,7 @@ def _invalid(report: SpecReport, error: InvalidSpec) -> None:
         report.source_lines = [printable(line) for line in error.source_lines]
 
 
-def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> SpecReport:
+def check_file(spec_file: SpecFile, config: RegistryConfig | None = None, executor: Any = None) -> SpecReport:
     """Load, validate and size one spec file. Never raises for a bad file: it becomes findings."""
     config = config or RegistryConfig()
     report = SpecReport(path=spec_file.display)
@@ -176,7 +176,7 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
     spec = report.spec
     report.id = spec.id
     try:
-        _size(report, spec, config)
+        _size(report, spec, config, spec_file.root, executor)
     except Exception as error:  # noqa: BLE001 - one design the engine cannot handle must not stop the run
         report.sample = report.at_planned = None
         report.add("invalid", "error", "design",
@@ -194,18 +194,32 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
     return report
 
 
-def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
+def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | None = None,
+          executor: Any = None) -> None:
     design = spec.design
+    from .power.verify import needs_verification
+
+    verify = needs_verification(design)
     try:
-        report.sample = solve_sample_size(design)
+        if verify:
+            from .power.cache import default_cache_dir
+            from .power.verify import verified_sample_size
+
+            cache_dir = default_cache_dir(root)
+            report.sample = verified_sample_size(design, executor=executor, cache_dir=cache_dir)
+        else:
+            report.sample = solve_sample_size(design)
     except InfeasibleDesign as error:
-        loc = tuple(error.field.split("."))
-        report.add("invalid", "error", error.field, error.message, loc)
+        report.add("invalid", "error", error.field, error.message, tuple(error.field.split(".")))
+        return
+    except InvalidSimulation as error:
+        report.add("invalid", "error", "design.simulation", str(error), ("design", "simulation"))
         return
     sample = report.sample
     family = design.family
-    for doubt in family.doubts(design):
-        report.add("approximate-size", "warning", "design.test", doubt, ("design", "test"))
+    if not verify:
+        for doubt in family.doubts(design):
+            report.add("approximate-size", "warning", "design.test", doubt, ("design", "test"))
     for note in sample.notes:
         report.add("method-note", "info", "design", note, ("design",))
     planned = spec.sample_size.per_group
@@ -214,6 +228,8 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
     unit = family.unit if family.unit != "per group" else "per group"
     if analysable >= family.min_n:
         report.at_planned = power_at(design, analysable)
+        if verify and sample.verification is not None:
+            report.at_planned = _simulated_at(design, analysable, report.at_planned, sample.verification, root)
     required = sample.enrolment_per_group
     after = f" ({analysable} analysable after {design.attrition:.0%} attrition)" if design.attrition else ""
     if planned < required:
@@ -234,6 +250,24 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
             f"{'per group ' if family.groups > 1 else ''}than the design needs, reduce the enrolment or justify it",
             loc,
         )
+
+
+def _simulated_at(design: Any, n: int, at: PowerAtN, verification: dict[str, Any], root: Path | None) -> PowerAtN:
+    """The planned n's power from the same simulation that verified the size (cached with it)."""
+    import dataclasses
+
+    from .power.cache import SizeCache, cache_key, default_cache_dir
+    from .power.simulate import simulated_power
+
+    reps, seed, distribution = verification["reps"], verification["seed"], verification["distribution"]
+    cache = SizeCache(default_cache_dir(root))
+    key = cache_key("simulated-power", {"design": design.model_dump(mode="json"), "n": n, "reps": reps,
+                                        "seed": seed, "distribution": distribution})
+    found = cache.get(key)
+    if found is None:
+        found = {"power": simulated_power(design, n, reps=reps, seed=seed, distribution=distribution).power}
+        cache.put(key, found)
+    return dataclasses.replace(at, power=float(found["power"]))
 
 
 def _analysable_note(analysable: int, attrition: float) -> str:
@@ -346,12 +380,13 @@ def _completeness(report: SpecReport, spec: Spec) -> None:
                        "state it so reviewers see it", ("design",))
 
 
-def check_files(files: list[SpecFile], config_for: Any = None) -> list[SpecReport]:
-    """Check every file, then the registry-wide rules (unique ids)."""
+def check_files(files: list[SpecFile], config_for: Any = None, executor: Any = None) -> list[SpecReport]:
+    """Check every file, then the registry-wide rules (unique ids). ``executor`` (a
+    ``concurrent.futures.Executor``) carries the simulations of simulation-verified sizes."""
     reports = []
     for spec_file in files:
         config = config_for(spec_file) if config_for else RegistryConfig()
-        reports.append(check_file(spec_file, config))
+        reports.append(check_file(spec_file, config, executor))
     by_id: dict[str, list[SpecReport]] = defaultdict(list)
     for report in reports:
         if report.spec is not None:

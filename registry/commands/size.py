@@ -131,6 +131,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     sim.add_argument("--distribution", default=None, metavar="SHAPE",
                      help="simulated outcome shape: normal (default), lognormal, counts (needs "
                      "--param baseline_mean=M, the mean of group 1); see docs/simulation.md")
+    sim.add_argument("--workers", type=_whole, default=1, metavar="N",
+                     help="run a simulation-verified size search in N processes (default 1)")
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
 
 
@@ -155,8 +157,10 @@ def run(args: argparse.Namespace) -> int:
         raise UsageError(f"--simulate REPS must be between 100 and {MAX_REPS:,}; got {simulate}")
     if simulate is None and (args.seed is not None or args.distribution is not None):
         simulate = DEFAULT_REPS  # --seed or --distribution alone ask for a simulation
+    if not 1 <= args.workers <= 1024:
+        raise UsageError(f"--workers must be between 1 and 1024; got {args.workers}")
     return size(args.test, params, n=args.n, as_json=args.json, simulate=simulate, seed=args.seed,
-                distribution=args.distribution)
+                distribution=args.distribution, workers=args.workers)
 
 
 def _nest(params: dict[str, Any]) -> dict[str, Any]:
@@ -200,11 +204,21 @@ def _build(test: str, params: dict[str, Any], simulate: int | None, seed: int | 
 
 
 def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bool = False,
-         simulate: int | None = None, seed: int | None = None, distribution: str | None = None) -> int:
-    """Print the sample size of ``test`` with ``params`` (or the power at ``n``); 0 on success."""
+         simulate: int | None = None, seed: int | None = None, distribution: str | None = None,
+         workers: int = 1) -> int:
+    """Print the sample size of ``test`` with ``params`` (or the power at ``n``); 0 on success.
+
+    A design whose size is an approximation (:func:`registry.power.verify.needs_verification`) gets
+    the simulation-verified n, searched in ``workers`` processes."""
     design = _build(test, params, simulate, seed, distribution)
     try:
-        result: SampleSize | PowerAtN = solve_sample_size(design) if n is None else power_at(design, n)
+        result: SampleSize | PowerAtN
+        if n is not None:
+            result = power_at(design, n)
+        else:
+            result = _verified(design, workers, as_json)
+    except InvalidSimulation as error:
+        raise UsageError(f"cannot simulate this design: {error}") from None
     except InfeasibleDesign as error:
         where = f" ({error.field})" if error.field != "design" else ""
         raise UsageError(f"the {test} design has no answer{where}: {error.message}") from None
@@ -223,6 +237,36 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
     else:
         _print_human(design, result, sim)
     return 0
+
+
+def _verified(design: DesignBase, workers: int, quiet: bool) -> SampleSize:
+    """The simulation-verified size where the design needs one, else the exact or formula size."""
+    from ..power.verify import needs_verification
+
+    if not needs_verification(design):
+        return solve_sample_size(design)
+    from contextlib import ExitStack
+
+    from ..power.cache import default_cache_dir
+    from ..power.verify import verified_sample_size
+
+    with ExitStack() as stack:
+        executor = None
+        if workers > 1:
+            from concurrent.futures import ProcessPoolExecutor
+
+            executor = stack.enter_context(ProcessPoolExecutor(workers))
+        progress = None
+        if not quiet and sys.stderr.isatty():
+            from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+            bar = stack.enter_context(Progress(TextColumn("verifying the size by simulation"), BarColumn(),
+                                               TextColumn("{task.completed:,} experiments"), TimeElapsedColumn(),
+                                               console=console(sys.stderr), transient=True))
+            task = bar.add_task("verifying", total=None)
+            progress = lambda done, total: bar.update(task, completed=done)  # noqa: E731
+        return verified_sample_size(design, executor=executor, progress=progress,
+                                    cache_dir=default_cache_dir(None))
 
 
 def _simulate(design: DesignBase, n: int, quiet: bool) -> SimulatedPower:
@@ -296,7 +340,7 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
         rows.append(("power", f"{result.achieved_power:.4f} ({_label(result)}; the smallest n reaching "
                               f"{result.target_power:g})"))
         if result.start_n is not None:
-            rows.append(("start", f"n = {result.start_n:,} per group from the {result.start_method}, "
+            rows.append(("start", f"n = {result.start_n:,} {result.unit} by the formula ({result.start_method}), "
                                   "where the search began"))
     else:
         rows.append(("power", f"{result.power:.4f} ({_kind(design)})"))
@@ -310,7 +354,7 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
     if sim is not None:
         rows.append(("simulated", f"{sim.power:.4f} ± {sim.standard_error:.4f} (SE; {sim.reps:,} simulated "
                      f"experiments, {sim.distribution} outcome, seed {sim.seed})"))
-    rows.append(("method", family.method))
+    rows.append(("method", result.method if isinstance(result, SampleSize) else family.method))
     rows.append(("reference", family.reference))
     for note in result.notes:
         rows.append(("note", note))

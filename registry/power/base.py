@@ -299,6 +299,9 @@ class Family(ABC):
     #: Whether a clustered design is sized by :meth:`cluster_power` (the test on cluster means)
     #: rather than by the design effect.
     cluster_means: ClassVar[bool] = False
+    #: Whether the size comes from an approximation that ``check`` and ``size`` confirm by simulating
+    #: the test (:mod:`registry.power.verify`).
+    verify_by_simulation: ClassVar[bool] = False
     #: Non-monotone families: the scan for the settled n starts at this fraction of the formula's
     #: n (0: at ``min_n``); it moves lower whenever the power there already reaches the target.
     scan_floor: ClassVar[float] = 0.0

@@ -157,6 +157,7 @@ class LogRank(Family):
 
     name = "log-rank"
     exact = False
+    verify_by_simulation = True
     title = "Log-rank test (two-group survival)"
     method = "Schoenfeld's events formula for the log-rank test, normal approximation"
     reference = (
