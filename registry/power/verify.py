@@ -21,8 +21,8 @@ Example
 -------
 >>> from registry.power import design_from_params
 >>> result = verified_sample_size(design_from_params("log-rank", hr=0.5, event_probability=0.8), reps=2000)
->>> result.label, result.start_n, result.n_per_group >= result.start_n - 5
-('simulation', 52, True)
+>>> result.label, result.start_n, result.n_per_group, result.achieved_power, result.verification["power_below"]
+('simulation', 41, 41, 0.818, 0.789)
 """
 
 from __future__ import annotations
