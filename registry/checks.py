@@ -17,7 +17,7 @@ from .config import RegistryConfig
 from .discovery import SpecFile
 from .model import ID_PATTERN, Spec
 from .pilot import InvalidPilot, PilotMissing, read_pilot
-from .power import InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
+from .power import EventsOnly, InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
 from .power.simulate import InvalidSimulation, SimulatedPower, simulate_plan
 from .problems import InvalidSpec, printable
 from .validation import validate_document
@@ -209,6 +209,10 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | N
             report.sample = verified_sample_size(design, executor=executor, cache_dir=cache_dir)
         else:
             report.sample = solve_sample_size(design)
+    except EventsOnly as error:
+        report.add("events-only", "warning", "design.effect",
+                   f"{error.message}; until then sample_size.per_group cannot be checked", ("design", "effect"))
+        return
     except InfeasibleDesign as error:
         report.add("invalid", "error", error.field, error.message, tuple(error.field.split(".")))
         return

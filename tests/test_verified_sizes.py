@@ -139,3 +139,37 @@ def test_check_reports_the_verified_n_as_the_requirement(tmp_path):
     assert report.sample.label == "simulation" and report.sample.n_per_group > formula
     assert report.verdict == "underpowered"
     assert report.at_planned.power < 0.8  # the simulated power at the planned 10
+
+
+def test_log_rank_with_only_a_hazard_ratio_answers_the_events(run):
+    # Schoenfeld (1983): events 4 (z_a + z_b)^2 / log(hr)^2 with scipy's normal quantiles.
+    expected = math.ceil(4 * (stats.norm.isf(0.025) + stats.norm.ppf(0.8)) ** 2 / math.log(0.6) ** 2)
+    result = run("size", "log-rank", "--hr", "0.6", "--json")
+    assert result.status == 0, result.err
+    data = result.json()
+    assert data["events"] == expected and data["n_per_group"] is None
+    assert "event_probability" in data["message"]
+    human = run("size", "log-rank", "--hr", "0.6")
+    assert human.status == 0 and f"{expected:,}" in human.out and "not computed" in human.out
+
+
+def test_check_reports_events_only_as_a_warning(tmp_path):
+    text = textwrap.dedent("""\
+        id: graft-survival
+        title: Graft survival with two conditioning regimens
+        status: draft
+        data_collection:
+          start: 2028-01-01
+        design:
+          test: log-rank
+          effect:
+            hr: 0.6
+        sample_size:
+          per_group: 80
+        """)
+    path = tmp_path / "graft-survival.yaml"
+    path.write_text(text, encoding="utf-8")
+    report = check_file(SpecFile(path=path, display="graft-survival.yaml", root=tmp_path))
+    finding = next(f for f in report.findings if f.kind == "events-only")
+    assert finding.severity == "warning" and finding.line == 9 and "121 events" in finding.message
+    assert not report.has_errors

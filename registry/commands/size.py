@@ -16,8 +16,8 @@ from typing import Any, Callable
 
 from ..checks import CAUTION
 from ..discovery import UsageError
-from ..power import (InfeasibleDesign, InvalidDesign, PowerAtN, SampleSize, UnknownFamily, design_from_params,
-                     enrolment, family_names, power_at, solve_sample_size)
+from ..power import (EventsOnly, InfeasibleDesign, InvalidDesign, PowerAtN, SampleSize, UnknownFamily,
+                     design_from_params, enrolment, family_names, power_at, solve_sample_size)
 from ..power.assumptions import DEFAULT_REPS, DEFAULT_SEED, MAX_REPS, SimulationPlan
 from ..power.base import DesignBase
 from ..power.simulate import InvalidSimulation, SimulatedPower, chunk_reps, simulated_power
@@ -219,6 +219,9 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
             result = _verified(design, workers, as_json)
     except InvalidSimulation as error:
         raise UsageError(f"cannot simulate this design: {error}") from None
+    except EventsOnly as error:
+        _print_events(design, error, as_json)
+        return 0
     except InfeasibleDesign as error:
         where = f" ({error.field})" if error.field != "design" else ""
         raise UsageError(f"the {test} design has no answer{where}: {error.message}") from None
@@ -237,6 +240,23 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
     else:
         _print_human(design, result, sim)
     return 0
+
+
+def _print_events(design: DesignBase, answer: EventsOnly, as_json: bool) -> None:
+    """The answer of an event-driven design stated without event information: events only."""
+    family = design.family
+    if as_json:
+        print(json.dumps({"test": family.name, "events": answer.events, "n_per_group": None,
+                          "method": family.method, "reference": family.reference, "message": answer.message,
+                          "caution": CAUTION}, indent=2, ensure_ascii=False))
+        return
+    out = console()
+    out.print(f"Events needed: {family.title} ({family.name})")
+    out.print(f"  events     {answer.events:,}", soft_wrap=True)
+    out.print(f"  enrolment  not computed: {answer.message}", soft_wrap=True)
+    out.print(f"  reference  {family.reference}", soft_wrap=True)
+    out.print()
+    out.print(f"Note: {CAUTION}", soft_wrap=True)
 
 
 def _verified(design: DesignBase, workers: int, quiet: bool) -> SampleSize:

@@ -26,6 +26,7 @@ __all__ = [
     "EffectBase",
     "Family",
     "InfeasibleDesign",
+    "EventsOnly",
     "MAX_N",
     "MAX_EFFECT",
     "fraction_validator",
@@ -49,6 +50,14 @@ class InfeasibleDesign(ValueError):
         super().__init__(message)
         self.field = field
         self.message = message
+
+
+class EventsOnly(InfeasibleDesign):
+    """An event-driven design stated without how many units have the event: only ``events`` is known."""
+
+    def __init__(self, events: int, message: str) -> None:
+        super().__init__(message, "design.effect")
+        self.events = events
 
 
 def fraction_validator(name: str, *, low_closed: bool = False):
@@ -384,6 +393,10 @@ class Family(ABC):
     def doubts(self, design: DesignBase) -> tuple[str, ...]:
         """Reasons to distrust this design's computed size (check reports them as warnings)."""
         return ()
+
+    def events_only(self, design: DesignBase) -> bool:
+        """Event-driven families: whether the design says nothing about how many units have the event."""
+        return False
 
     def required_events(self, design: DesignBase, effect_size: float) -> float | None:
         """Event-driven families: the number of events the analysis needs (else None)."""

@@ -8,7 +8,7 @@ from typing import Any, Callable
 import numpy as np
 from scipy import optimize
 
-from .base import MAX_N, DesignBase, Family, InfeasibleDesign
+from .base import MAX_N, DesignBase, EventsOnly, Family, InfeasibleDesign
 from .results import PowerAtN, SampleSize
 
 __all__ = ["smallest_n", "smallest_n_from_which", "solve_sample_size", "power_at", "power_of", "minimum_effect",
@@ -209,6 +209,14 @@ def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> S
     es = _checked_effect(family, tested) if effect_size is None else effect_size
     if effect_size is not None:
         family.check_direction(tested, es)
+    if family.events_only(tested):
+        events = family.required_events(tested, es)
+        assert events is not None
+        needed = math.ceil(events * design.design_effect - 1e-9)
+        raise EventsOnly(needed, (
+            f"the {family.title} needs {needed:,} events ({family.method}); how many units to enrol depends on "
+            "how many of them have the event before the analysis: give event_probability, or median_control with "
+            "accrual and follow_up (exponential survival, uniform accrual), to turn events into units"))
     start = family.approximate_n(tested, es)
     if not math.isfinite(start) or start > MAX_N:
         raise InfeasibleDesign(
@@ -354,6 +362,10 @@ def power_at(design: DesignBase, n: int) -> PowerAtN:
     with a multiplicity block, power is per outcome at the per-test alpha.
     """
     family = design.family
+    if family.events_only(design):
+        raise InfeasibleDesign(
+            f"power at n = {n} depends on how many units have the event: give event_probability, or "
+            "median_control with accrual and follow_up", "design.effect")
     if n < family.min_n:
         raise InfeasibleDesign(f"n must be at least {family.min_n} for the {family.title}; got {n}", "n")
     n_individual = _individual(design, n)
