@@ -45,7 +45,7 @@ FEW = settings(max_examples=25, deadline=None)
         ("chi-square", dict(w=0.10, df=1), 785, 1),
         ("chi-square", dict(w=0.30, df=2), 107, 1),
         # Cohen (1988) ch. 9 worked example, f2 = .15 with u = 5, power .80: N about 92, from memory.
-        ("linear-regression", dict(f2=0.15, predictors=5), 92, 1),
+        ("linear-regression", dict(f2=0.15, predictors=5, predictor_values="fixed"), 92, 1),
     ],
 )
 def test_published_sample_sizes(test, params, expected, tolerance):
@@ -102,7 +102,7 @@ def test_anova_with_two_groups_is_the_two_sample_t():
 def test_anova_is_a_regression_on_group_dummies():
     # k groups = k - 1 dummy predictors: f2 = f^2, N = k n, df = (k - 1, N - k) (Cohen 1988, ch. 9).
     for n in (8, 30):
-        assert power("linear-regression", 4 * n, f2=0.0625, predictors=3).power == pytest.approx(
+        assert power("linear-regression", 4 * n, f2=0.0625, predictors=3, predictor_values="fixed").power == pytest.approx(
             power("one-way-anova", n, f=0.25, groups=4).power, rel=1e-12)
 
 
@@ -114,7 +114,8 @@ def test_anova_means_give_cohens_f():
 
 def test_regression_r2_forms_agree():
     # Cohen (1988) eqs. 9.2.2 and 9.2.3: f2 = R2 / (1 - R2); f2 = R2 change / (1 - R2 full).
-    assert sample_size("linear-regression", r2=0.13043478260869565, predictors=5).n_per_group == 92
+    assert sample_size("linear-regression", r2=0.13043478260869565, predictors=5,
+                       predictor_values="fixed").n_per_group == 92
     a = sample_size("linear-regression", r2_change=0.06, r2_full=0.4, predictors=2, total_predictors=5)
     b = sample_size("linear-regression", f2=0.1, predictors=2, total_predictors=5)
     assert a.n_per_group == b.n_per_group
@@ -232,7 +233,8 @@ def test_chi_square_power_matches_statsmodels(w, df, n):
 def test_regression_power_matches_statsmodels(f2, u, p, n):
     # statsmodels FTestPowerF2: lambda = f2 (df_num + df_denom + ncc); ncc = p - u + 1 gives f2 N.
     expected = smp.FTestPowerF2().power(effect_size=f2, df_num=u, df_denom=n - p - 1, alpha=0.05, ncc=p - u + 1)
-    assert power("linear-regression", n, f2=f2, predictors=u, total_predictors=p).power == pytest.approx(
+    assert power("linear-regression", n, f2=f2, predictors=u, total_predictors=p,
+                 predictor_values="fixed").power == pytest.approx(
         expected, rel=1e-9)
 
 
@@ -296,9 +298,12 @@ def test_welch_with_equal_sds_is_close_to_the_pooled_t():
         ("one-way-anova", dict(means=[10, 12, 15], sd=4.0), "normal", 20000, 0.0),
         ("one-proportion", dict(p0=0.5, p=0.7), "binary", 20000, 0.0),
         ("one-proportion", dict(p0=0.2, p=0.1, alternative="less"), "binary", 20000, 0.0),
-        ("linear-regression", dict(f2=0.15, predictors=5), "normal", 10000, 0.0),
+        ("linear-regression", dict(f2=0.15, predictors=5, predictor_values="fixed"), "normal", 10000, 0.0),
+        ("linear-regression", dict(r2_change=0.1, r2_full=0.4, predictors=2, total_predictors=5,
+                                   predictor_values="fixed"), "normal", 10000, 0.0),
+        # Random predictors: new predictors drawn in every simulated experiment.
         ("linear-regression", dict(r2_change=0.1, r2_full=0.4, predictors=2, total_predictors=5), "normal",
-         10000, 0.0),
+         4000, 0.0),
         ("two-proportions", dict(p1=0.3, p2=0.5), "binary", 20000, 0.0),
         ("two-proportions", dict(p1=0.3, p2=0.5, method="arcsine"), "binary", 20000, 0.0),
         ("two-proportions", dict(p1=0.3, p2=0.5, continuity_correction=True), "binary", 20000, 0.0),
@@ -315,6 +320,33 @@ def test_simulated_power_agrees_at_the_returned_n(test, params, distribution, re
     design = design_from_params(test, **params)
     simulated = simulated_power(design, result.n_per_group, reps=reps, seed=DEFAULT_SEED, distribution=distribution)
     assert abs(simulated.power - result.achieved_power) <= 3 * simulated.standard_error + allowance
+
+
+def test_fixed_predictor_formula_falls_short_for_measured_predictors():
+    # Cohen's noncentral F assumes fixed predictors; with measured (random) covariates the same F
+    # test has less power at that n, in a seeded simulation with new predictors in every experiment.
+    params = dict(r2_change=0.1, r2_full=0.4, predictors=2, total_predictors=5)
+    fixed = sample_size("linear-regression", predictor_values="fixed", **params)
+    random = sample_size("linear-regression", **params)
+    design = design_from_params("linear-regression", **params)
+    at_fixed = simulated_power(design, fixed.n_per_group, reps=8000, seed=5)  # analytic 0.767
+    at_random = simulated_power(design, random.n_per_group, reps=8000, seed=5)
+    assert random.n_per_group > fixed.n_per_group
+    assert at_fixed.power < 0.8 - 3 * at_fixed.standard_error
+    assert at_random.power > 0.8 - 3 * at_random.standard_error
+    design_n1 = design.family.power(design, [random.n_per_group - 1])
+    assert float(design_n1[0]) < 0.8 <= random.achieved_power
+
+
+@pytest.mark.parametrize("n", [10, 94])
+def test_random_predictor_power_with_all_predictors_tested_matches_a_direct_integral(n):
+    # With every predictor tested, W is chi-square with N - 1 df (Sampson 1974, from memory):
+    # power = E[P(F'(u, N - u - 1, f2 W) > c)], here by scipy.integrate.quad over W's density.
+    f2, u = 0.15, 5
+    crit = stats.f.isf(0.05, u, n - u - 1)
+    expected, _ = integrate.quad(lambda w: stats.chi2.pdf(w, n - 1) * stats.ncf.sf(crit, u, n - u - 1, f2 * w),
+                                 0, np.inf, limit=200)
+    assert power("linear-regression", n, f2=f2, predictors=u).power == pytest.approx(expected, rel=1e-7)
 
 
 def test_simulated_power_is_alpha_under_the_null_for_the_exact_f_test():
