@@ -173,3 +173,17 @@ def test_check_reports_events_only_as_a_warning(tmp_path):
     finding = next(f for f in report.findings if f.kind == "events-only")
     assert finding.severity == "warning" and finding.line == 9 and "121 events" in finding.message
     assert not report.has_errors
+
+
+def test_size_with_workers_gives_the_same_verified_answer(run, tmp_path, monkeypatch):
+    # Processes carry the candidates; the answer is the one a single process finds.
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path))  # a fresh user cache: the pool really runs
+    argv = ("size", "log-rank", "--hr", "0.5", "--param", "event_probability=0.8", "--simulate", "2000", "--json")
+    pooled = run(*argv, "--workers", "2")
+    assert pooled.status == 0, pooled.err
+    data = pooled.json()
+    alone = verified_sample_size(design_from_params("log-rank", hr=0.5, event_probability=0.8,
+                                                    simulation={"reps": 2000}))
+    assert (data["n_per_group"], data["achieved_power"]) == (alone.n_per_group, alone.achieved_power)
+    assert data["label"] == "simulation" and data["start_n"] == alone.start_n
+    assert run("size", "log-rank", "--hr", "0.5", "--workers", "0").status == 2
