@@ -297,16 +297,24 @@ def _simulation(report: SpecReport, spec: Spec) -> None:
         "simulated-power", "info", "design.simulation",
         f"simulated power at the planned {at.n_per_group} analysable {unit}: {sim.power:.3f} ± "
         f"{sim.standard_error:.3f} (SE; {sim.reps:,} simulated experiments, {sim.distribution} outcome, "
-        f"seed {sim.seed}); {design.family.label(design.as_tested())} power {at.power:.3f}", loc,
+        f"seed {sim.seed}); {_power_label(report)} power {at.power:.3f}", loc,
     )
     if at.power >= design.power and sim.power < design.power - 3 * sim.standard_error:
         report.add(
             "simulation-disagrees", "warning", "design.simulation",
             f"with a {sim.distribution} outcome the simulated power {sim.power:.3f} ± {sim.standard_error:.3f} is "
             f"more than 3 standard errors below the target {design.power:g}, although the calculation "
-            f"({design.family.label(design.as_tested())}) gives {at.power:.3f}: the test's assumptions may not hold for this outcome; consider a larger n, "
+            f"({_power_label(report)}) gives {at.power:.3f}: the test's assumptions may not hold for this outcome; consider a larger n, "
             "a transformation or a test suited to the outcome, and ask a statistician", loc,
         )
+
+
+def _power_label(report: SpecReport) -> str:
+    """How the power at the planned n was obtained (the label of the size it was computed with)."""
+    if report.sample is not None:
+        return report.sample.label
+    assert report.spec is not None
+    return report.spec.design.family.label(report.spec.design.as_tested())
 
 
 def _pilot(report: SpecReport, spec: Spec, spec_file: SpecFile) -> None:
