@@ -262,11 +262,12 @@ def _simulated_at(design: Any, n: int, at: PowerAtN, verification: dict[str, Any
 
     from .power.cache import SizeCache, cache_key, default_cache_dir
     from .power.simulate import simulated_power
+    from .power.verify import ALGORITHM
 
     reps, seed, distribution = verification["reps"], verification["seed"], verification["distribution"]
     cache = SizeCache(default_cache_dir(root))
     key = cache_key("simulated-power", {"design": design.model_dump(mode="json"), "n": n, "reps": reps,
-                                        "seed": seed, "distribution": distribution})
+                                        "seed": seed, "distribution": distribution, "algorithm": ALGORITHM})
     found = cache.get(key)
     if found is None:
         found = {"power": simulated_power(design, n, reps=reps, seed=seed, distribution=distribution).power}

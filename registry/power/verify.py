@@ -50,6 +50,9 @@ Progress = Callable[[int, "int | None"], None]
 
 _GROWTH_LIMIT = 50  # the search gives up beyond 50 times the formula's n
 
+#: Part of every cache key: raise it whenever the search or a simulator changes its answers.
+ALGORITHM = 1
+
 
 def needs_verification(design: DesignBase) -> bool:
     """Whether this design's size should come from simulating its test.
@@ -182,7 +185,7 @@ def verified_sample_size(
     family = design.family
     cache = SizeCache(cache_dir)
     key = cache_key("verified-size", {"design": design.model_dump(mode="json"), "reps": reps, "seed": seed,
-                                      "distribution": distribution})
+                                      "distribution": distribution, "algorithm": ALGORITHM})
     found = cache.get(key)
     if found is None:
         search = _Search(design, reps, seed, distribution, executor, progress)
