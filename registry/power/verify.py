@@ -9,9 +9,10 @@ candidate n and moves n until the simulated power at n reaches the target and at
 * Every candidate n is simulated from the same seed, so the estimates at neighbouring n share
   their random stream (common random numbers) and the search is reproducible bit for bit; each
   estimate is vectorized over its replicates (:func:`registry.power.simulate.simulated_power`).
-* The search brackets the answer in geometric steps from the formula's n, then bisects; a batch
-  of candidates is evaluated at once, through ``executor`` (any ``concurrent.futures.Executor``:
-  a process pool, or a distributed engine's executor) when one is given.
+* The search brackets the answer in geometric steps from the formula's n (2% of it at first),
+  then bisects; with ``executor`` (any ``concurrent.futures.Executor``: a process pool, or a
+  distributed engine's executor) a batch of candidates is simulated at once, one per worker,
+  without it one candidate at a time, stopping as soon as the answer is bracketed.
 * The answer holds "within Monte Carlo error": the estimates at n and n - 1 each have standard
   error ``sqrt(p (1 - p) / reps)`` (about 0.0028 at 20,000 replicates), reported with the result.
 * Results are cached (:mod:`registry.power.cache`) by a hash of the design, the settings and
@@ -120,17 +121,24 @@ class _Search:
             self.progress(self.simulated, None)
 
     def _first_switch(self, points: list[int], target: float) -> tuple[int, int] | None:
-        """The first adjacent pair (a, b) of ``points`` (sorted) with power(a) < target <= power(b)."""
-        powers = self.power(points)
-        for (a, pa), (b, pb) in zip(zip(points, powers), zip(points[1:], powers[1:])):
-            if pa < target <= pb:
-                return a, b
+        """The first adjacent pair (a, b) of ``points`` (sorted) with power(a) < target <= power(b).
+
+        Without an executor the points are simulated one at a time from the left, stopping at the
+        first such pair; with one, all at once."""
+        if self.executor is not None:
+            self.power(points)
+        previous = None
+        for point in points:
+            p = self.power([point])[0]
+            if previous is not None and previous[1] < target <= p:
+                return previous[0], point
+            previous = (point, p)
         return None
 
     def run(self, start: int, lo_limit: int) -> int:
         target = self.design.power
         start = max(start, lo_limit)
-        step = max(1, round(start * 0.03))
+        step = max(1, round(start * 0.02))
         if self.power([start])[0] >= target:  # bracket downwards
             high = start
             while True:
