@@ -52,7 +52,7 @@ Progress = Callable[[int, "int | None"], None]
 _GROWTH_LIMIT = 50  # the search gives up beyond 50 times the formula's n
 
 #: Part of every cache key: raise it whenever the search or a simulator changes its answers.
-ALGORITHM = 1
+ALGORITHM = 2
 
 
 def needs_verification(design: DesignBase) -> bool:
