@@ -18,7 +18,7 @@ from .config import RegistryConfig
 from .discovery import SpecFile
 from .model import ID_PATTERN, Spec
 from .pilot import InvalidPilot, PilotMissing, read_pilot
-from .power import InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
+from .power import EventsOnly, InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
 from .power.simulate import InvalidSimulation, SimulatedPower, simulate_plan
 from .problems import InvalidSpec, printable
 from .validation import validate_document
@@ -158,7 +158,7 @@ def _invalid(report: SpecReport, error: InvalidSpec) -> None:
         report.source_lines = [printable(line) for line in error.source_lines]
 
 
-def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> SpecReport:
+def check_file(spec_file: SpecFile, config: RegistryConfig | None = None, executor: Any = None) -> SpecReport:
     """Load, validate and size one spec file. Never raises for a bad file: it becomes findings."""
     config = config or RegistryConfig()
     report = SpecReport(path=spec_file.display)
@@ -181,7 +181,7 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
     spec = report.spec
     report.id = spec.id
     try:
-        _size(report, spec, config)
+        _size(report, spec, config, spec_file.root, executor)
     except Exception as error:  # noqa: BLE001 - one design the engine cannot handle must not stop the run
         report.sample = report.at_planned = None
         report.add("invalid", "error", "design",
@@ -208,13 +208,30 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
     return report
 
 
-def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
+def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | None = None,
+          executor: Any = None) -> None:
     design = spec.design
+    from .power.verify import needs_verification
+
+    verify = needs_verification(design)
     try:
-        report.sample = solve_sample_size(design)
+        if verify:
+            from .power.cache import default_cache_dir
+            from .power.verify import verified_sample_size
+
+            cache_dir = default_cache_dir(root)
+            report.sample = verified_sample_size(design, executor=executor, cache_dir=cache_dir)
+        else:
+            report.sample = solve_sample_size(design)
+    except EventsOnly as error:
+        report.add("events-only", "warning", "design.effect",
+                   f"{error.message}; until then sample_size.per_group cannot be checked", ("design", "effect"))
+        return
     except InfeasibleDesign as error:
-        loc = tuple(error.field.split("."))
-        report.add("invalid", "error", error.field, error.message, loc)
+        report.add("invalid", "error", error.field, error.message, tuple(error.field.split(".")))
+        return
+    except InvalidSimulation as error:
+        report.add("invalid", "error", "design.simulation", str(error), ("design", "simulation"))
         return
     if design.sequential is not None:
         from .interim import size_for_check
@@ -223,8 +240,9 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
             return
     sample = report.sample
     family = design.family
-    for doubt in family.doubts(design):
-        report.add("approximate-size", "warning", "design.test", doubt, ("design", "test"))
+    if not verify:
+        for doubt in family.doubts(design):
+            report.add("approximate-size", "warning", "design.test", doubt, ("design", "test"))
     for note in sample.notes:
         report.add("method-note", "info", "design", note, ("design",))
     planned = spec.sample_size.per_group
@@ -233,6 +251,8 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
     unit = family.unit if family.unit != "per group" else "per group"
     if analysable >= family.min_n:
         report.at_planned = power_at(design, analysable)
+        if verify and sample.verification is not None:
+            report.at_planned = _simulated_at(design, analysable, report.at_planned, sample.verification, root)
         if report.sequential is not None:
             from .power.sequential_size import apply_to_power
 
@@ -259,6 +279,25 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
         )
 
 
+def _simulated_at(design: Any, n: int, at: PowerAtN, verification: dict[str, Any], root: Path | None) -> PowerAtN:
+    """The planned n's power from the same simulation that verified the size (cached with it)."""
+    import dataclasses
+
+    from .power.cache import SizeCache, cache_key, default_cache_dir
+    from .power.simulate import simulated_power
+    from .power.verify import ALGORITHM
+
+    reps, seed, distribution = verification["reps"], verification["seed"], verification["distribution"]
+    cache = SizeCache(default_cache_dir(root))
+    key = cache_key("simulated-power", {"design": design.model_dump(mode="json"), "n": n, "reps": reps,
+                                        "seed": seed, "distribution": distribution, "algorithm": ALGORITHM})
+    found = cache.get(key)
+    if found is None:
+        found = {"power": simulated_power(design, n, reps=reps, seed=seed, distribution=distribution).power}
+        cache.put(key, found)
+    return dataclasses.replace(at, power=float(found["power"]))
+
+
 def _analysable_note(analysable: int, attrition: float) -> str:
     return f" ({analysable} analysable, enrolled for {attrition:.0%} attrition)" if attrition else ""
 
@@ -282,16 +321,24 @@ def _simulation(report: SpecReport, spec: Spec) -> None:
         "simulated-power", "info", "design.simulation",
         f"simulated power at the planned {at.n_per_group} analysable {unit}: {sim.power:.3f} ± "
         f"{sim.standard_error:.3f} (SE; {sim.reps:,} simulated experiments, {sim.distribution} outcome, "
-        f"seed {sim.seed}); exact power {at.power:.3f}", loc,
+        f"seed {sim.seed}); {_power_label(report)} power {at.power:.3f}", loc,
     )
     if at.power >= design.power and sim.power < design.power - 3 * sim.standard_error:
         report.add(
             "simulation-disagrees", "warning", "design.simulation",
             f"with a {sim.distribution} outcome the simulated power {sim.power:.3f} ± {sim.standard_error:.3f} is "
-            f"more than 3 standard errors below the target {design.power:g}, although the exact calculation "
-            f"gives {at.power:.3f}: the test's assumptions may not hold for this outcome; consider a larger n, "
+            f"more than 3 standard errors below the target {design.power:g}, although the calculation "
+            f"({_power_label(report)}) gives {at.power:.3f}: the test's assumptions may not hold for this outcome; consider a larger n, "
             "a transformation or a test suited to the outcome, and ask a statistician", loc,
         )
+
+
+def _power_label(report: SpecReport) -> str:
+    """How the power at the planned n was obtained (the label of the size it was computed with)."""
+    if report.sample is not None:
+        return report.sample.label
+    assert report.spec is not None
+    return report.spec.design.family.label(report.spec.design.as_tested())
 
 
 def _pilot(report: SpecReport, spec: Spec, spec_file: SpecFile) -> None:
@@ -424,12 +471,13 @@ def _template_text(report: SpecReport, spec: Spec) -> None:
                        "text (register refuses a spec with template text)", loc)
 
 
-def check_files(files: list[SpecFile], config_for: Any = None) -> list[SpecReport]:
-    """Check every file, then the registry-wide rules (unique ids)."""
+def check_files(files: list[SpecFile], config_for: Any = None, executor: Any = None) -> list[SpecReport]:
+    """Check every file, then the registry-wide rules (unique ids). ``executor`` (a
+    ``concurrent.futures.Executor``) carries the simulations of simulation-verified sizes."""
     reports = []
     for spec_file in files:
         config = config_for(spec_file) if config_for else RegistryConfig()
-        reports.append(check_file(spec_file, config))
+        reports.append(check_file(spec_file, config, executor))
     by_id: dict[str, list[SpecReport]] = defaultdict(list)
     for report in reports:
         if report.spec is not None:

@@ -24,6 +24,12 @@ class Run:
         return json.loads(self.out)
 
 
+@pytest.fixture(autouse=True)
+def _private_user_cache(tmp_path_factory, monkeypatch):
+    """Simulation-verified sizes are cached in the user cache folder outside git: give each test its own."""
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path_factory.mktemp("user-cache")))
+
+
 @pytest.fixture
 def run(capsys, monkeypatch):
     """``run("check", "path")`` calls ``main([...])`` and returns status, stdout and stderr."""

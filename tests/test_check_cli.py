@@ -202,16 +202,16 @@ def test_schema_command_writes_the_schema(tmp_path, run):
     assert '"$schema": "https://json-schema.org/draft/2020-12/schema"' in target.read_text()
 
 
-def test_rank_sizes_that_are_slow_to_converge_are_flagged(tmp_path, run):
+def test_rank_sizes_that_are_slow_to_converge_are_verified_by_simulation(tmp_path, run):
     # Rank tests under a Laplace outcome reach their asymptotic relative efficiency slowly (measured by
-    # simulation in tests/test_families_b_rank.py), so check warns instead of certifying the size.
+    # simulation in tests/test_families_b_rank.py), so check sizes them by simulating the rank test.
     text = MINIMAL.replace("test: two-sample-t", "test: mann-whitney").replace(
         "    difference: 4.0\n    sd: 5.0\n", "    d: 0.8\n    distribution: laplace\n")
     _write(tmp_path, "fibre-butyrate.yaml", text)
-    findings = run("check", tmp_path, "--json").json()["specs"][0]["findings"]
-    kinds = {(f["kind"], f["severity"]) for f in findings}
-    assert ("approximate-size", "warning") in kinds and ("method-note", "info") in kinds
-    normal = MINIMAL.replace("test: two-sample-t", "test: mann-whitney")
-    _write(tmp_path, "fibre-butyrate.yaml", normal)
-    kinds = {f["kind"] for f in run("check", tmp_path, "--json").json()["specs"][0]["findings"]}
-    assert "approximate-size" not in kinds
+    spec = run("check", tmp_path, "--json").json()["specs"][0]
+    kinds = {(f["kind"], f["severity"]) for f in spec["findings"]}
+    assert ("method-note", "info") in kinds and ("approximate-size", "warning") not in kinds
+    assert any("simulated power of the" in f["message"] for f in spec["findings"])
+    from registry.power import sample_size
+
+    assert spec["analysable_per_group"] > sample_size("mann-whitney", d=0.8, distribution="laplace").n_per_group

@@ -45,14 +45,20 @@ FEW = settings(max_examples=25, deadline=None)
         ("chi-square", dict(w=0.10, df=1), 785, 1),
         ("chi-square", dict(w=0.30, df=2), 107, 1),
         # Cohen (1988) ch. 9 worked example, f2 = .15 with u = 5, power .80: N about 92, from memory.
-        ("linear-regression", dict(f2=0.15, predictors=5), 92, 1),
-        # Fleiss (1981) Table A.3 (continuity-corrected), p1 .05 vs p2 .10, alpha .05 two-sided,
-        # power .80: 474 per group, from memory.
-        ("two-proportions", dict(p1=0.05, p2=0.10, continuity_correction=True), 474, 0),
+        ("linear-regression", dict(f2=0.15, predictors=5, predictor_values="fixed"), 92, 1),
     ],
 )
 def test_published_sample_sizes(test, params, expected, tolerance):
     assert abs(sample_size(test, **params).n_per_group - expected) <= tolerance
+
+
+def test_published_continuity_corrected_formula_is_the_starting_point():
+    # Fleiss (1981) Table A.3 (continuity-corrected), p1 .05 vs p2 .10, alpha .05 two-sided,
+    # power .80: 474 per group, from memory. The exact enumeration of the corrected test then
+    # finds fewer units enough.
+    result = sample_size("two-proportions", p1=0.05, p2=0.10, continuity_correction=True)
+    assert result.start_n == 474
+    assert result.n_per_group < 474
 
 
 def _fleiss_n(p1, p2, alpha, target, ratio=1.0, corrected=False):
@@ -72,17 +78,17 @@ def _fleiss_n(p1, p2, alpha, target, ratio=1.0, corrected=False):
                                            (0.5, 0.65, 1.0)])
 @pytest.mark.parametrize("corrected", [False, True])
 def test_two_proportions_match_fleiss_closed_form(p1, p2, ratio, corrected):
-    # Fleiss (1981) eq. 3.14; Fleiss, Tytun & Ury (1980): the smallest integer at or above the
-    # closed form (the closed form ignores the far tail, worth < 1e-6 here).
+    # Fleiss (1981) eq. 3.14; Fleiss, Tytun & Ury (1980): the starting point of the exact search is
+    # the smallest integer at or above the closed form.
     result = sample_size("two-proportions", p1=p1, p2=p2, allocation_ratio=ratio,
                          continuity_correction=corrected)
-    assert result.n_per_group == math.ceil(_fleiss_n(p1, p2, 0.05, 0.8, ratio, corrected) - 1e-9)
+    assert result.start_n == math.ceil(_fleiss_n(p1, p2, 0.05, 0.8, ratio, corrected) - 1e-9)
 
 
 def test_fleiss_worked_example_without_correction():
     # p1 .30 vs p2 .50, two-sided .05, power .80: Fleiss (1981) eq. 3.14 gives 93.0 -> 93 per group
     # (hand computation: (1.96 sqrt(2 .4 .6) + 0.8416 sqrt(.21 + .25))^2 / .2^2 = 93.0).
-    assert sample_size("two-proportions", p1=0.3, p2=0.5).n_per_group == 93
+    assert sample_size("two-proportions", p1=0.3, p2=0.5).start_n == 93
 
 
 def test_anova_with_two_groups_is_the_two_sample_t():
@@ -96,7 +102,7 @@ def test_anova_with_two_groups_is_the_two_sample_t():
 def test_anova_is_a_regression_on_group_dummies():
     # k groups = k - 1 dummy predictors: f2 = f^2, N = k n, df = (k - 1, N - k) (Cohen 1988, ch. 9).
     for n in (8, 30):
-        assert power("linear-regression", 4 * n, f2=0.0625, predictors=3).power == pytest.approx(
+        assert power("linear-regression", 4 * n, f2=0.0625, predictors=3, predictor_values="fixed").power == pytest.approx(
             power("one-way-anova", n, f=0.25, groups=4).power, rel=1e-12)
 
 
@@ -108,7 +114,8 @@ def test_anova_means_give_cohens_f():
 
 def test_regression_r2_forms_agree():
     # Cohen (1988) eqs. 9.2.2 and 9.2.3: f2 = R2 / (1 - R2); f2 = R2 change / (1 - R2 full).
-    assert sample_size("linear-regression", r2=0.13043478260869565, predictors=5).n_per_group == 92
+    assert sample_size("linear-regression", r2=0.13043478260869565, predictors=5,
+                       predictor_values="fixed").n_per_group == 92
     a = sample_size("linear-regression", r2_change=0.06, r2_full=0.4, predictors=2, total_predictors=5)
     b = sample_size("linear-regression", f2=0.1, predictors=2, total_predictors=5)
     assert a.n_per_group == b.n_per_group
@@ -226,7 +233,8 @@ def test_chi_square_power_matches_statsmodels(w, df, n):
 def test_regression_power_matches_statsmodels(f2, u, p, n):
     # statsmodels FTestPowerF2: lambda = f2 (df_num + df_denom + ncc); ncc = p - u + 1 gives f2 N.
     expected = smp.FTestPowerF2().power(effect_size=f2, df_num=u, df_denom=n - p - 1, alpha=0.05, ncc=p - u + 1)
-    assert power("linear-regression", n, f2=f2, predictors=u, total_predictors=p).power == pytest.approx(
+    assert power("linear-regression", n, f2=f2, predictors=u, total_predictors=p,
+                 predictor_values="fixed").power == pytest.approx(
         expected, rel=1e-9)
 
 
@@ -241,8 +249,8 @@ def test_pooled_two_proportions_match_statsmodels(p1, p2, ratio, n, alternative)
     sm_alt = {"two-sided": "two-sided", "greater": "larger", "less": "smaller"}[alternative]
     expected = power_proportions_2indep(p2 - p1, p1, n2, ratio=n / n2, alpha=0.05, alternative=sm_alt,
                                         return_results=False)
-    ours = power("two-proportions", n, p1=p1, p2=p2, allocation_ratio=ratio, alternative=alternative).power
-    assert ours == pytest.approx(expected, rel=1e-9)
+    design = design_from_params("two-proportions", p1=p1, p2=p2, allocation_ratio=ratio, alternative=alternative)
+    assert float(design.family.formula_power(design, [n])[0]) == pytest.approx(expected, rel=1e-9)
 
 
 @pytest.mark.parametrize("p1, p2, ratio, n", [(0.3, 0.5, 1.0, 93), (0.1, 0.25, 2.0, 60), (0.7, 0.5, 3.0, 40)])
@@ -250,10 +258,10 @@ def test_arcsine_two_proportions_match_statsmodels(p1, p2, ratio, n):
     # statsmodels NormalIndPower with proportion_effectsize (Cohen's h), nobs2 = ratio * nobs1.
     h = proportion_effectsize(p2, p1)
     expected = smp.NormalIndPower().power(effect_size=h, nobs1=n, alpha=0.05, ratio=math.ceil(ratio * n) / n)
-    ours = power("two-proportions", n, p1=p1, p2=p2, allocation_ratio=ratio, method="arcsine").power
-    assert ours == pytest.approx(expected, rel=1e-9)
+    design = design_from_params("two-proportions", p1=p1, p2=p2, allocation_ratio=ratio, method="arcsine")
+    assert float(design.family.formula_power(design, [n])[0]) == pytest.approx(expected, rel=1e-9)
     n_sm = smp.NormalIndPower().solve_power(effect_size=h, nobs1=None, alpha=0.05, power=0.8, ratio=1.0)
-    assert sample_size("two-proportions", p1=p1, p2=p2, method="arcsine").n_per_group == math.ceil(n_sm)
+    assert sample_size("two-proportions", p1=p1, p2=p2, method="arcsine").start_n == math.ceil(n_sm)
 
 
 @pytest.mark.parametrize("r, r0, n, alternative", [(0.3, 0.0, 85, "two-sided"), (0.5, 0.2, 55, "greater"),
@@ -290,14 +298,19 @@ def test_welch_with_equal_sds_is_close_to_the_pooled_t():
         ("one-way-anova", dict(means=[10, 12, 15], sd=4.0), "normal", 20000, 0.0),
         ("one-proportion", dict(p0=0.5, p=0.7), "binary", 20000, 0.0),
         ("one-proportion", dict(p0=0.2, p=0.1, alternative="less"), "binary", 20000, 0.0),
-        ("linear-regression", dict(f2=0.15, predictors=5), "normal", 10000, 0.0),
+        ("linear-regression", dict(f2=0.15, predictors=5, predictor_values="fixed"), "normal", 10000, 0.0),
+        ("linear-regression", dict(r2_change=0.1, r2_full=0.4, predictors=2, total_predictors=5,
+                                   predictor_values="fixed"), "normal", 10000, 0.0),
+        # Random predictors: new predictors drawn in every simulated experiment.
         ("linear-regression", dict(r2_change=0.1, r2_full=0.4, predictors=2, total_predictors=5), "normal",
-         10000, 0.0),
+         4000, 0.0),
+        ("two-proportions", dict(p1=0.3, p2=0.5), "binary", 20000, 0.0),
+        ("two-proportions", dict(p1=0.3, p2=0.5, method="arcsine"), "binary", 20000, 0.0),
+        ("two-proportions", dict(p1=0.3, p2=0.5, continuity_correction=True), "binary", 20000, 0.0),
+        ("fisher-exact", dict(p1=0.2, p2=0.6), "binary", 20000, 0.0),
         # Large-sample approximations: the allowance is twice the approximation error at this n,
-        # measured with 200,000 simulated experiments (simulated minus analytic: pooled -0.001,
-        # arcsine -0.002, correlation +0.005, chi-square -0.005; standard error 0.0009).
-        ("two-proportions", dict(p1=0.3, p2=0.5), "binary", 20000, 0.01),
-        ("two-proportions", dict(p1=0.3, p2=0.5, method="arcsine"), "binary", 20000, 0.01),
+        # measured with 200,000 simulated experiments (simulated minus analytic: correlation +0.005,
+        # chi-square -0.005; standard error 0.0009).
         ("correlation", dict(r=0.3), "normal", 20000, 0.01),
         ("chi-square", dict(w=0.3, df=2), "multinomial", 20000, 0.01),
     ],
@@ -309,14 +322,31 @@ def test_simulated_power_agrees_at_the_returned_n(test, params, distribution, re
     assert abs(simulated.power - result.achieved_power) <= 3 * simulated.standard_error + allowance
 
 
-def test_continuity_corrected_formula_is_conservative_for_the_corrected_test():
-    # The corrected z test is discrete; the Fleiss-Tytun-Ury normal formula understates its power
-    # (simulated 0.810 with 200,000 experiments at n = 103 against 0.801), so the simulated power is at least the formula's.
-    params = dict(p1=0.3, p2=0.5, continuity_correction=True)
-    result = sample_size("two-proportions", **params)
-    simulated = simulated_power(design_from_params("two-proportions", **params), result.n_per_group,
-                                reps=20000, distribution="binary")
-    assert simulated.power >= result.achieved_power - 3 * simulated.standard_error
+def test_fixed_predictor_formula_falls_short_for_measured_predictors():
+    # Cohen's noncentral F assumes fixed predictors; with measured (random) covariates the same F
+    # test has less power at that n, in a seeded simulation with new predictors in every experiment.
+    params = dict(r2_change=0.1, r2_full=0.4, predictors=2, total_predictors=5)
+    fixed = sample_size("linear-regression", predictor_values="fixed", **params)
+    random = sample_size("linear-regression", **params)
+    design = design_from_params("linear-regression", **params)
+    at_fixed = simulated_power(design, fixed.n_per_group, reps=8000, seed=5)  # analytic 0.767
+    at_random = simulated_power(design, random.n_per_group, reps=8000, seed=5)
+    assert random.n_per_group > fixed.n_per_group
+    assert at_fixed.power < 0.8 - 3 * at_fixed.standard_error
+    assert at_random.power > 0.8 - 3 * at_random.standard_error
+    design_n1 = design.family.power(design, [random.n_per_group - 1])
+    assert float(design_n1[0]) < 0.8 <= random.achieved_power
+
+
+@pytest.mark.parametrize("n", [10, 94])
+def test_random_predictor_power_with_all_predictors_tested_matches_a_direct_integral(n):
+    # With every predictor tested, W is chi-square with N - 1 df (Sampson 1974, from memory):
+    # power = E[P(F'(u, N - u - 1, f2 W) > c)], here by scipy.integrate.quad over W's density.
+    f2, u = 0.15, 5
+    crit = stats.f.isf(0.05, u, n - u - 1)
+    expected, _ = integrate.quad(lambda w: stats.chi2.pdf(w, n - 1) * stats.ncf.sf(crit, u, n - u - 1, f2 * w),
+                                 0, np.inf, limit=200)
+    assert power("linear-regression", n, f2=f2, predictors=u).power == pytest.approx(expected, rel=1e-7)
 
 
 def test_simulated_power_is_alpha_under_the_null_for_the_exact_f_test():

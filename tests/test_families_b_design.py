@@ -12,7 +12,7 @@ from statsmodels.stats.power import TTestIndPower
 
 from registry.checks import check_file
 from registry.discovery import SpecFile
-from registry.power import FAMILIES, InvalidDesign, design_from_params, power, sample_size
+from registry.power import FAMILIES, InvalidDesign, design_from_params, get_family, power, sample_size
 from registry.power.base import Cluster
 from registry.power.simulate import simulated_power
 
@@ -38,24 +38,35 @@ def test_design_effect():
     assert Cluster(size=25, icc=0.0).design_effect == 1.0
 
 
-def test_clustered_two_sample_t():
-    # Cohen (1988) Table 2.4.1: d = 0.5 needs 64 per group (from memory); x 1.45 = 92.8 -> 93 analysable,
-    # enrolled in whole clusters of 10: 10 clusters, 100 units per group
+def _cluster_means_power(d, k, m, icc, alpha=0.05):
+    """Two-sided pooled t-test on k cluster means per group: scipy.stats.nct with df 2k - 2 and
+    ncp d / sqrt((icc + (1 - icc) / m) 2 / k) (Donner & Klar 2000, ch. 5, from memory)."""
+    df, ncp = 2 * k - 2, d / math.sqrt((icc + (1 - icc) / m) * 2 / k)
+    crit = stats.t.isf(alpha / 2, df)
+    return stats.nct.sf(crit, df, ncp) + stats.nct.cdf(-crit, df, ncp)
+
+
+def test_clustered_two_sample_t_is_sized_on_cluster_means():
+    # 11 clusters of 10 per group reach 0.80 on cluster means (scipy.stats.nct), 10 do not.
     result = sample_size("two-sample-t", d=0.5, cluster=CLUSTER)
-    assert result.individual_n_per_group == 64
-    assert result.n_per_group == 93
-    assert result.clusters_per_group == (10, 10)
-    assert (result.enrolment_per_group, result.enrolment_total) == (100, 200)
+    assert _cluster_means_power(0.5, 11, 10, 0.05) >= 0.8 > _cluster_means_power(0.5, 10, 10, 0.05)
+    assert result.n_per_group == 110 and result.group_sizes == (110, 110)
+    assert result.clusters_per_group == (11, 11)
+    assert (result.enrolment_per_group, result.enrolment_total) == (110, 220)
+    assert result.achieved_power == pytest.approx(_cluster_means_power(0.5, 11, 10, 0.05), rel=1e-9)
     assert result.design_effect == pytest.approx(1.45)
-    assert any("design effect" in note for note in result.notes)
+    assert result.label == "exact"
+    assert any("cluster means" in note for note in result.notes)
 
 
 def test_cluster_then_attrition_order():
-    # documented order: n x DE, then / (1 - attrition), then whole clusters: 93 / 0.9 = 103.3 -> 104 -> 11 clusters
-    result = sample_size("two-sample-t", d=0.5, cluster=CLUSTER, attrition=0.1)
-    assert result.n_per_group == 93
-    assert result.clusters_per_group == (11, 11)
-    assert result.enrolment_per_group == 110
+    # documented order for a design-effect family: n x DE, then / (1 - attrition), then whole clusters
+    plain = sample_size("mann-whitney", d=0.5).n_per_group
+    result = sample_size("mann-whitney", d=0.5, cluster=CLUSTER, attrition=0.1)
+    analysable = math.ceil(plain * 1.45 - 1e-9)
+    assert result.n_per_group == analysable
+    assert result.clusters_per_group == (math.ceil(math.ceil(analysable / 0.9 - 1e-9) / 10),) * 2
+    assert result.label == "design-effect approximation"
 
 
 def test_unequal_allocation_gives_clusters_per_group():
@@ -65,7 +76,7 @@ def test_unequal_allocation_gives_clusters_per_group():
     assert result.clusters_per_group == (math.ceil(n1 / 10), math.ceil(n2 / 10))
 
 
-@pytest.mark.parametrize("test", TWO_GROUP)
+@pytest.mark.parametrize("test", [t for t in TWO_GROUP if not get_family(t).cluster_means])
 def test_cluster_works_for_every_two_group_family(test):
     params = EXAMPLES[test]
     plain = sample_size(test, **params)
@@ -80,11 +91,48 @@ def test_cluster_works_for_every_two_group_family(test):
     assert at.effective_n_per_group == plain.n_per_group
 
 
-def test_zero_icc_changes_only_the_rounding_to_clusters():
+def test_zero_icc_on_cluster_means_costs_only_degrees_of_freedom():
+    # With icc 0 the k cluster means of m units carry all the information of k m units, on 2k - 2 df.
     plain = sample_size("two-sample-t", d=0.5)
     clustered = sample_size("two-sample-t", d=0.5, cluster={"size": 6, "icc": 0.0})
-    assert clustered.n_per_group == plain.n_per_group == 64
-    assert clustered.enrolment_per_group == 66  # 11 clusters of 6
+    k = clustered.clusters_per_group[0]
+    assert _cluster_means_power(0.5, k, 6, 0.0) >= 0.8 > _cluster_means_power(0.5, k - 1, 6, 0.0)
+    assert plain.n_per_group <= clustered.n_per_group == 6 * k <= plain.n_per_group + 12
+
+
+def test_few_clusters_reach_the_target_in_a_simulation_of_the_cluster_means_analysis():
+    # Large clusters and a large effect: the design effect alone asks for 3 clusters of 20 per group
+    # (power 0.75 on cluster means); the cluster-means answer holds in a seeded simulation of random
+    # cluster effects analysed with scipy.stats.ttest_ind on the means, and one cluster fewer does not.
+    cluster = {"size": 20, "icc": 0.2}
+    result = sample_size("two-sample-t", d=1.2, cluster=cluster)
+    k = result.clusters_per_group[0]
+    old = math.ceil(math.ceil(sample_size("two-sample-t", d=1.2).n_per_group * 4.8 - 1e-9) / 20)
+    assert old < k
+    rng = np.random.default_rng(7)
+    reps = 20000
+
+    def simulated(k):
+        icc, m = 0.2, 20
+        between = rng.normal(0, math.sqrt(icc), (reps, 2, k))
+        within = rng.normal(0, math.sqrt(1 - icc), (reps, 2, k, m)).mean(axis=3)
+        means = between + within
+        means[:, 1] += 1.2
+        return float(np.mean(stats.ttest_ind(means[:, 1], means[:, 0], axis=1).pvalue < 0.05))
+
+    se = math.sqrt(0.8 * 0.2 / reps)
+    assert simulated(k) > 0.8 - 2 * se
+    assert simulated(k - 1) < 0.8 - 3 * se
+    assert abs(simulated(k) - result.achieved_power) < 4 * se
+
+
+def test_unequal_cluster_sizes_inflate_the_variance_of_cluster_means():
+    equal = sample_size("two-sample-t", d=0.5, cluster=CLUSTER)
+    varying = sample_size("two-sample-t", d=0.5, cluster={**CLUSTER, "size_cv": 0.6})
+    assert varying.clusters_per_group[0] > equal.clusters_per_group[0]
+    assert varying.label == "approximation for unequal cluster sizes"
+    # Eldridge, Ashby & Kerry (2006): design effect 1 + ((1 + cv^2) m - 1) icc = 1 + (13.6 - 1) 0.05 (from memory)
+    assert varying.design_effect == pytest.approx(1.63)
 
 
 def test_cluster_scales_events():
@@ -142,11 +190,11 @@ def test_simulation_uses_the_per_test_alpha():
 
 def test_multiplicity_with_cluster_and_attrition_compose():
     result = sample_size("two-sample-t", d=0.5, multiplicity={"outcomes": 2}, cluster=CLUSTER, attrition=0.2)
-    base = sample_size("two-sample-t", d=0.5, alpha=0.025).n_per_group
-    assert result.individual_n_per_group == base
-    analysable = math.ceil(base * 1.45 - 1e-9)
-    assert result.n_per_group == analysable
-    assert result.enrolment_per_group == 10 * math.ceil(math.ceil(analysable / 0.8 - 1e-9) / 10)
+    k = result.clusters_per_group and result.n_per_group // 10
+    assert _cluster_means_power(0.5, k, 10, 0.05, alpha=0.025) >= 0.8 > _cluster_means_power(0.5, k - 1, 10, 0.05,
+                                                                                           alpha=0.025)
+    assert result.n_per_group == 10 * k
+    assert result.enrolment_per_group == 10 * math.ceil(math.ceil(10 * k / 0.8 - 1e-9) / 10)
 
 
 def test_bad_multiplicity_is_explained():
@@ -179,9 +227,9 @@ def test_check_accepts_the_clustered_enrolment_and_flags_one_cluster_less(tmp_pa
         path.write_text(text, encoding="utf-8")
         return check_file(SpecFile(path=path, display="litter-growth.yaml", root=tmp_path))
 
-    enough = spec(110)
+    enough = spec(130)  # 11 clusters of 10 analysed on cluster means, enrolled for 10% attrition: 13 clusters
     assert enough.verdict == "ok", [f.message for f in enough.findings]
-    assert enough.sample.clusters_per_group == (11, 11)
-    short = spec(100)
+    assert enough.sample.clusters_per_group == (13, 13)
+    short = spec(120)
     assert short.verdict == "underpowered"
     assert np.isclose(short.sample.design_effect, 1.45)

@@ -133,7 +133,6 @@ def test_power_reports_expected_events():
     "params, message",
     [
         (dict(hr=1.0, event_probability=0.5), "hr must not be 1"),
-        (dict(hr=0.6), "give event_probability, or median_control"),
         (dict(hr=0.6, median_control=3.0), "accrual, follow_up missing"),
         (dict(hr=0.6, event_probability=70), "did you mean 0.7"),
         (dict(hr=0.6, event_probability=0.5, median_control=3.0, accrual=1.0, follow_up=1.0), "not both"),
@@ -143,6 +142,16 @@ def test_power_reports_expected_events():
 def test_bad_effects_are_explained(params, message):
     with pytest.raises(InvalidDesign, match=message):
         sample_size("log-rank", **params)
+
+
+def test_hazard_ratio_alone_answers_events_only():
+    # Schoenfeld (1983): 4 (z_a + z_b)^2 / log(hr)^2 events, scipy quantiles; units need event information.
+    from registry.power import EventsOnly
+
+    with pytest.raises(EventsOnly, match="give event_probability, or median_control") as caught:
+        sample_size("log-rank", hr=0.6)
+    assert caught.value.events == math.ceil(4 * (stats.norm.isf(0.025) + stats.norm.ppf(0.8)) ** 2
+                                            / math.log(0.6) ** 2)
 
 
 @settings(max_examples=25, deadline=None)

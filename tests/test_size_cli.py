@@ -12,7 +12,8 @@ from registry.checks import CAUTION
 SAMPLE_KEYS = {"test", "n_per_group", "n_total", "achieved_power", "target_power", "alpha", "alternative",
                "effect_size", "symbol", "group_sizes", "enrolment_per_group", "enrolment_total", "unit", "method",
                "reference", "events", "notes", "simulation", "caution", "alpha_per_test", "design_effect",
-               "individual_n_per_group", "cluster_size", "clusters_per_group"}
+               "individual_n_per_group", "cluster_size", "clusters_per_group", "label", "start_n", "start_method",
+               "verification"}
 POWER_KEYS = {"test", "n_per_group", "n_total", "power", "alpha", "alternative", "target_power", "effect_size",
               "symbol", "minimum_detectable_effect", "minimum_detectable_natural", "group_sizes", "unit", "events",
               "notes", "simulation", "caution", "alpha_per_test", "design_effect", "effective_n_per_group"}

@@ -25,22 +25,32 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--oversize-margin", type=float, default=None, metavar="FRACTION",
                         help="flag a design as oversized above required x (1 + FRACTION) "
                         "(default 0.25, or the registry's .prespec.yaml)")
+    parser.add_argument("--workers", type=int, default=1, metavar="N",
+                        help="run the simulations of simulation-verified sizes in N processes (default 1)")
 
 
 def run(args: argparse.Namespace) -> int:
     return check(args.paths or ["."], as_json=args.json, oversize_margin=args.oversize_margin,
-                 history=not args.no_history)
+                 history=not args.no_history, workers=args.workers)
 
 
 def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | None = None,
-          history: bool = True) -> int:
+          history: bool = True, workers: int = 1) -> int:
     """Check every spec under ``paths``; 0 when no error finding, 1 otherwise."""
     if oversize_margin is not None and not 0 <= oversize_margin <= 10:
         raise UsageError(f"--oversize-margin must be between 0 and 10; got {oversize_margin!r}")
+    if not 1 <= workers <= 1024:
+        raise UsageError(f"--workers must be between 1 and 1024; got {workers!r}")
     files = discover(paths)
     config_errors: list[str] = []
     config_for = config_loader(config_errors, oversize_margin)
-    reports: list[SpecReport] = check_files(files, config_for)
+    if workers > 1:
+        from concurrent.futures import ProcessPoolExecutor
+
+        with ProcessPoolExecutor(workers) as pool:
+            reports: list[SpecReport] = check_files(files, config_for, pool)
+    else:
+        reports = check_files(files, config_for)
     status = add_history(reports, files, paths, config_for) if history else None
     failed = any(r.has_errors for r in reports) or bool(config_errors) or bool(status and status.problems)
     if as_json:

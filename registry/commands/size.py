@@ -16,8 +16,8 @@ from typing import Any, Callable
 
 from ..checks import CAUTION
 from ..discovery import UsageError
-from ..power import (InfeasibleDesign, InvalidDesign, PowerAtN, SampleSize, UnknownFamily, design_from_params,
-                     enrolment, family_names, power_at, solve_sample_size)
+from ..power import (EventsOnly, InfeasibleDesign, InvalidDesign, PowerAtN, SampleSize, UnknownFamily,
+                     design_from_params, enrolment, family_names, power_at, solve_sample_size)
 from ..power.assumptions import DEFAULT_REPS, DEFAULT_SEED, MAX_REPS, SimulationPlan
 from ..power.base import DesignBase
 from ..power.simulate import InvalidSimulation, SimulatedPower, chunk_reps, simulated_power
@@ -151,6 +151,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     sim.add_argument("--distribution", default=None, metavar="SHAPE",
                      help="simulated outcome shape: normal (default), lognormal, counts (needs "
                      "--param baseline_mean=M, the mean of group 1); see docs/simulation.md")
+    sim.add_argument("--workers", type=_whole, default=1, metavar="N",
+                     help="run a simulation-verified size search in N processes (default 1)")
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
 
 
@@ -176,8 +178,10 @@ def run(args: argparse.Namespace) -> int:
         raise UsageError(f"--simulate REPS must be between 100 and {MAX_REPS:,}; got {simulate}")
     if simulate is None and (args.seed is not None or args.distribution is not None):
         simulate = DEFAULT_REPS  # --seed or --distribution alone ask for a simulation
+    if not 1 <= args.workers <= 1024:
+        raise UsageError(f"--workers must be between 1 and 1024; got {args.workers}")
     return size(args.test, params, n=args.n, as_json=args.json, simulate=simulate, seed=args.seed,
-                distribution=args.distribution)
+                distribution=args.distribution, workers=args.workers)
 
 
 def _looks(text: str) -> int | list[float]:
@@ -257,11 +261,24 @@ def _build(test: str, params: dict[str, Any], simulate: int | None, seed: int | 
 
 
 def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bool = False,
-         simulate: int | None = None, seed: int | None = None, distribution: str | None = None) -> int:
-    """Print the sample size of ``test`` with ``params`` (or the power at ``n``); 0 on success."""
+         simulate: int | None = None, seed: int | None = None, distribution: str | None = None,
+         workers: int = 1) -> int:
+    """Print the sample size of ``test`` with ``params`` (or the power at ``n``); 0 on success.
+
+    A design whose size is an approximation (:func:`registry.power.verify.needs_verification`) gets
+    the simulation-verified n, searched in ``workers`` processes."""
     design = _build(test, params, simulate, seed, distribution)
     try:
-        result: SampleSize | PowerAtN = solve_sample_size(design) if n is None else power_at(design, n)
+        result: SampleSize | PowerAtN
+        if n is not None:
+            result = power_at(design, n)
+        else:
+            result = _verified(design, workers, as_json)
+    except InvalidSimulation as error:
+        raise UsageError(f"cannot simulate this design: {error}") from None
+    except EventsOnly as error:
+        _print_events(design, error, as_json)
+        return 0
     except InfeasibleDesign as error:
         where = f" ({error.field})" if error.field != "design" else ""
         raise UsageError(f"the {test} design has no answer{where}: {error.message}") from None
@@ -290,6 +307,53 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
     else:
         _print_human(design, result, sim, staged_rows)
     return 0
+
+
+def _print_events(design: DesignBase, answer: EventsOnly, as_json: bool) -> None:
+    """The answer of an event-driven design stated without event information: events only."""
+    family = design.family
+    if as_json:
+        print(json.dumps({"test": family.name, "events": answer.events, "n_per_group": None,
+                          "method": family.method, "reference": family.reference, "message": answer.message,
+                          "caution": CAUTION}, indent=2, ensure_ascii=False))
+        return
+    out = console()
+    out.print(f"Events needed: {family.title} ({family.name})")
+    out.print(f"  events     {answer.events:,}", soft_wrap=True)
+    out.print(f"  enrolment  not computed: {answer.message}", soft_wrap=True)
+    out.print(f"  reference  {family.reference}", soft_wrap=True)
+    out.print()
+    out.print(f"Note: {CAUTION}", soft_wrap=True)
+
+
+def _verified(design: DesignBase, workers: int, quiet: bool) -> SampleSize:
+    """The simulation-verified size where the design needs one, else the exact or formula size."""
+    from ..power.verify import needs_verification
+
+    if not needs_verification(design):
+        return solve_sample_size(design)
+    from contextlib import ExitStack
+
+    from ..power.cache import default_cache_dir
+    from ..power.verify import verified_sample_size
+
+    with ExitStack() as stack:
+        executor = None
+        if workers > 1:
+            from concurrent.futures import ProcessPoolExecutor
+
+            executor = stack.enter_context(ProcessPoolExecutor(workers))
+        progress = None
+        if not quiet and sys.stderr.isatty():
+            from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+            bar = stack.enter_context(Progress(TextColumn("verifying the size by simulation"), BarColumn(),
+                                               TextColumn("{task.completed:,} experiments"), TimeElapsedColumn(),
+                                               console=console(sys.stderr), transient=True))
+            task = bar.add_task("verifying", total=None)
+            progress = lambda done, total: bar.update(task, completed=done)  # noqa: E731
+        return verified_sample_size(design, executor=executor, progress=progress,
+                                    cache_dir=default_cache_dir(None))
 
 
 def _simulate(design: DesignBase, n: int, quiet: bool) -> SimulatedPower:
@@ -361,8 +425,11 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
     if result.events is not None:
         rows.append(("events", f"{result.events:,}"))
     if isinstance(result, SampleSize):
-        rows.append(("power", f"{result.achieved_power:.4f} ({_kind(design)}; the smallest n reaching "
+        rows.append(("power", f"{result.achieved_power:.4f} ({_label(result)}; the smallest n reaching "
                               f"{result.target_power:g})"))
+        if result.start_n is not None:
+            rows.append(("start", f"n = {result.start_n:,} {result.unit} by the formula ({result.start_method}), "
+                                  "where the search began"))
     else:
         rows.append(("power", f"{result.power:.4f} ({_kind(design)})"))
         if result.minimum_detectable_effect is None:
@@ -376,7 +443,7 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
         rows.append(("simulated", f"{sim.power:.4f} ± {sim.standard_error:.4f} (SE; {sim.reps:,} simulated "
                      f"experiments, {sim.distribution} outcome, seed {sim.seed})"))
     rows.extend(staged_rows)
-    rows.append(("method", family.method))
+    rows.append(("method", result.method if isinstance(result, SampleSize) else family.method))
     rows.append(("reference", family.reference))
     for note in result.notes:
         rows.append(("note", note))
@@ -392,4 +459,13 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
 def _kind(design: DesignBase) -> str:
     if design.sequential is not None and design.sequential.count > 1:
         return "group-sequential test, boundaries by numerical integration of the normal-theory statistic"
-    return "exact" if design.family.exact else "normal approximation"
+    return design.family.label(design.as_tested())
+
+
+def _label(result: SampleSize) -> str:
+    """The method label of a sample size, with the Monte Carlo facts when it was simulated."""
+    sim = result.verification
+    if sim is None:
+        return result.label
+    return (f"{result.label}: {sim['reps']:,} simulated experiments per n, seed {sim['seed']}, Monte Carlo "
+            f"standard error {sim['standard_error']:.4f}")

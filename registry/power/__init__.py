@@ -12,7 +12,7 @@ from typing import Any
 
 from pydantic import ValidationError
 
-from .base import MAX_N, DesignBase, Family, InfeasibleDesign
+from .base import MAX_N, DesignBase, EventsOnly, Family, InfeasibleDesign
 from .catalog import FAMILIES, UnknownFamily, family_names, get_family
 from .results import PowerAtN, SampleSize
 from .solve import enrolment, minimum_effect, power_at, solve_sample_size
@@ -23,6 +23,7 @@ __all__ = [
     "design_from_params",
     "InvalidDesign",
     "InfeasibleDesign",
+    "EventsOnly",
     "UnknownFamily",
     "Family",
     "DesignBase",

@@ -28,6 +28,7 @@ __all__ = [
     "EffectBase",
     "Family",
     "InfeasibleDesign",
+    "EventsOnly",
     "MAX_N",
     "MAX_EFFECT",
     "fraction_validator",
@@ -51,6 +52,14 @@ class InfeasibleDesign(ValueError):
         super().__init__(message)
         self.field = field
         self.message = message
+
+
+class EventsOnly(InfeasibleDesign):
+    """An event-driven design stated without how many units have the event: only ``events`` is known."""
+
+    def __init__(self, events: int, message: str) -> None:
+        super().__init__(message, "design.effect")
+        self.events = events
 
 
 def fraction_validator(name: str, *, low_closed: bool = False):
@@ -93,6 +102,11 @@ class Cluster(BaseModel):
         ge=2, le=1_000_000, description="Units analysed per cluster (m), a whole number of at least 2."
     )
     icc: float = locked(description="Intracluster correlation of the outcome, in [0, 1).")
+    size_cv: float = locked(
+        default=0.0, ge=0, le=3,
+        description="Coefficient of variation of the cluster size (SD / mean of units per cluster), 0 when "
+        "every cluster has size units; the design effect becomes 1 + ((1 + cv^2) m - 1) x icc.",
+    )
 
     @field_validator("icc")
     @classmethod
@@ -101,8 +115,20 @@ class Cluster(BaseModel):
 
     @property
     def design_effect(self) -> float:
-        """Variance inflation of a cluster-randomised comparison, ``1 + (m - 1) * icc``."""
-        return round(1 + (self.size - 1) * self.icc, 12)
+        """Variance inflation of a cluster-randomised comparison, ``1 + (m - 1) * icc``, or with
+        unequal cluster sizes ``1 + ((1 + cv^2) m - 1) * icc`` (Eldridge, Ashby & Kerry 2006)."""
+        return round(1 + ((1 + self.size_cv**2) * self.size - 1) * self.icc, 12)
+
+    @property
+    def mean_variance(self) -> float:
+        """Variance of one cluster's mean outcome, in units of the outcome's variance:
+        ``icc + (1 - icc) / m`` (``= design effect / m``); with unequal sizes ``icc + (1 - icc)(1 + cv^2) / m``,
+        the first-order average of ``1 / m_j`` over cluster sizes of mean m and coefficient of variation cv.
+
+        >>> Cluster(size=10, icc=0.05).mean_variance
+        0.145
+        """
+        return round(self.icc + (1 - self.icc) * (1 + self.size_cv**2) / self.size, 12)
 
 
 class Multiplicity(BaseModel):
@@ -314,6 +340,15 @@ class Family(ABC):
     exact: ClassVar[bool] = True
     #: Whether power never decreases with n (False for exact discrete tests).
     monotone: ClassVar[bool] = True
+    #: Whether a clustered design is sized by :meth:`cluster_power` (the test on cluster means)
+    #: rather than by the design effect.
+    cluster_means: ClassVar[bool] = False
+    #: Whether the size comes from an approximation that ``check`` and ``size`` confirm by simulating
+    #: the test (:mod:`registry.power.verify`).
+    verify_by_simulation: ClassVar[bool] = False
+    #: Non-monotone families: the scan for the settled n starts at this fraction of the formula's
+    #: n (0: at ``min_n``); it moves lower whenever the power there already reaches the target.
+    scan_floor: ClassVar[float] = 0.0
     #: An illustrative ``design.effect`` block for ``prespec new`` templates.
     example: ClassVar[dict[str, Any]] = {}
     #: Set by the catalog: the spec's design model for this family.
@@ -373,9 +408,30 @@ class Family(ABC):
         """Family-specific caveats carried into the results."""
         return ()
 
+    def formula(self, design: DesignBase) -> str | None:
+        """The published approximate formula the search starts from, when the reported n is not the
+        formula's own (exact enumeration or simulation); None when :meth:`power` is the method itself."""
+        return None
+
+    def label(self, design: DesignBase) -> str:
+        """How the reported power is obtained: ``exact``, ``exact for fixed predictors``, ``normal
+        approximation`` or ``simulation`` (the last is set by the simulation-verified search)."""
+        if design.cluster is not None and not self.cluster_means:
+            return "design-effect approximation"
+        return "exact" if self.exact else "normal approximation"
+
+    def cluster_power(self, design: DesignBase, clusters: np.ndarray, effect_size: float) -> np.ndarray:
+        """Families with :attr:`cluster_means`: power with ``clusters`` clusters in group 1 (vectorized),
+        the analysis run on the cluster means."""
+        raise NotImplementedError(f"{self.name} sizes clustered designs by the design effect")
+
     def doubts(self, design: DesignBase) -> tuple[str, ...]:
         """Reasons to distrust this design's computed size (check reports them as warnings)."""
         return ()
+
+    def events_only(self, design: DesignBase) -> bool:
+        """Event-driven families: whether the design says nothing about how many units have the event."""
+        return False
 
     def required_events(self, design: DesignBase, effect_size: float) -> float | None:
         """Event-driven families: the number of events the analysis needs (else None)."""

@@ -13,6 +13,7 @@ from .correlation import Correlation
 from .linear_regression import LinearRegression
 from .one_proportion import OneProportion
 from .equivalence_t import EquivalenceT
+from .fisher_exact import FisherExact
 from .log_rank import LogRank
 from .mann_whitney import MannWhitney
 from .noninferiority_t import NonInferiorityT
@@ -34,6 +35,7 @@ FAMILIES: tuple[Family, ...] = (
     WelchT(),
     OneWayAnova(),
     TwoProportions(),
+    FisherExact(),
     OneProportion(),
     Correlation(),
     ChiSquare(),

@@ -18,7 +18,8 @@ class HazardRatio(EffectBase):
     """The hazard ratio to detect, with how many units are expected to have the event.
 
     Give ``event_probability`` directly, or exponential survival in the control group
-    (``median_control``) with uniform ``accrual`` followed by ``follow_up``.
+    (``median_control``) with uniform ``accrual`` followed by ``follow_up``. With neither, only the
+    number of events the analysis needs can be answered.
     """
 
     hr: float = locked(
@@ -60,12 +61,7 @@ class HazardRatio(EffectBase):
             raise ValueError(
                 "give either event_probability, or median_control with accrual and follow_up, not both"
             )
-        if self.event_probability is None:
-            if not given:
-                raise ValueError(
-                    "say how many units will have the event: give event_probability, or median_control with "
-                    "accrual and follow_up (exponential survival, uniform accrual)"
-                )
+        if self.event_probability is None and given:
             missing = [k for k, v in survival.items() if v is None]
             if missing:
                 raise ValueError(f"{', '.join(missing)} missing: median_control, accrual and follow_up go together")
@@ -157,6 +153,7 @@ class LogRank(Family):
 
     name = "log-rank"
     exact = False
+    verify_by_simulation = True
     title = "Log-rank test (two-group survival)"
     method = "Schoenfeld's events formula for the log-rank test, normal approximation"
     reference = (
@@ -172,6 +169,10 @@ class LogRank(Family):
 
     def effect_size(self, design: DesignBase) -> float:
         return math.log(design.effect.hr)
+
+    def events_only(self, design: DesignBase) -> bool:
+        effect = design.effect
+        return effect.event_probability is None and effect.median_control is None
 
     def _z_alpha(self, design: DesignBase) -> float:
         return float(stats.norm.isf(design.alpha / (2 if design.alternative == "two-sided" else 1)))

@@ -79,6 +79,7 @@ class MannWhitney(Family):
 
     name = "mann-whitney"
     exact = False
+    verify_by_simulation = True
     title = "Wilcoxon-Mann-Whitney rank-sum test"
     method = ("t-test n divided by the asymptotic relative efficiency for the assumed distribution, "
               "or Noether's formula from P(Y > X)")

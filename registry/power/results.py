@@ -37,6 +37,14 @@ class SampleSize:
     individual_n_per_group: int | None = None
     cluster_size: int | None = None
     clusters_per_group: tuple[int, ...] | None = None
+    #: How ``achieved_power`` was obtained: exact, exact for fixed predictors, normal approximation,
+    #: or simulation (then ``verification`` holds its replicates, seed and Monte Carlo standard error).
+    label: str = "exact"
+    #: The published formula's n (group 1, before the design effect) the search started from, and
+    #: that formula's name, when the reported n comes from enumeration or simulation instead.
+    start_n: int | None = None
+    start_method: str | None = None
+    verification: dict[str, Any] | None = None
 
     def __repr__(self) -> str:
         events = f", events={self.events}" if self.events is not None else ""

@@ -46,6 +46,7 @@ class SignedRank(Family):
 
     name = "signed-rank"
     exact = False
+    verify_by_simulation = True
     title = "Wilcoxon signed-rank test (paired or one sample)"
     method = "paired t-test n divided by the asymptotic relative efficiency for the assumed distribution"
     reference = (

@@ -8,7 +8,7 @@ from typing import Any, Callable
 import numpy as np
 from scipy import optimize
 
-from .base import MAX_N, DesignBase, Family, InfeasibleDesign
+from .base import MAX_N, DesignBase, EventsOnly, Family, InfeasibleDesign
 from .results import PowerAtN, SampleSize
 
 __all__ = ["smallest_n", "smallest_n_from_which", "solve_sample_size", "power_at", "power_of", "minimum_effect",
@@ -125,7 +125,17 @@ def _shared_notes(design: DesignBase) -> list[str]:
             "must succeed (co-primary in the strict sense), no split is needed but the joint power is lower "
             "than the per-outcome power"
         )
-    if design.cluster is not None:
+    if design.cluster is not None and _by_cluster_means(design.family, design):
+        c = design.cluster
+        cv = f" and cluster sizes varying with coefficient of variation {c.size_cv:g}" if c.size_cv else ""
+        notes.append(
+            f"randomised in clusters of {c.size} with intracluster correlation {c.icc:g}{cv}: the test is run on "
+            f"the cluster means, a t-test with k1 + k2 - 2 degrees of freedom for k1 and k2 clusters, each mean "
+            f"with variance {c.mean_variance:.4g} x the outcome's variance (design effect {c.design_effect:.4g} "
+            "/ cluster size); enrolment is then allowed for attrition and rounded up to whole clusters"
+            + ("; with unequal sizes the cluster means' variance is a first-order approximation" if cv else "")
+        )
+    elif design.cluster is not None:
         c = design.cluster
         notes.append(
             f"randomised in clusters of {c.size} with intracluster correlation {c.icc:g}: the individual-level n "
@@ -135,6 +145,30 @@ def _shared_notes(design: DesignBase) -> list[str]:
             "and somewhat less power"
         )
     return notes
+
+
+def _by_cluster_means(family: Family, design: DesignBase) -> bool:
+    """Whether a clustered design is sized by the family's test on cluster means."""
+    return design.cluster is not None and family.cluster_means
+
+
+def _power_fn(family: Family, tested: DesignBase) -> Callable[[np.ndarray, float], np.ndarray]:
+    """Power at analysable units per group: on cluster means (whole clusters of ``cluster.size``
+    units) where the family offers it, else the family's own power at that many units."""
+    if _by_cluster_means(family, tested):
+        assert tested.cluster is not None
+        m = tested.cluster.size
+
+        def on_means(n: np.ndarray, es: float) -> np.ndarray:
+            k = np.floor(np.asarray(n, dtype=float) / m + 1e-9)
+            ok = k >= 2
+            out = np.zeros(k.shape)
+            if ok.any():
+                out[ok] = family.cluster_power(tested, k[ok], es)
+            return out
+
+        return on_means
+    return lambda n, es: family.power(tested, n, es)
 
 
 def _clustered(design: DesignBase, n_individual: int) -> int:
@@ -175,6 +209,14 @@ def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> S
     es = _checked_effect(family, tested) if effect_size is None else effect_size
     if effect_size is not None:
         family.check_direction(tested, es)
+    if family.events_only(tested):
+        events = family.required_events(tested, es)
+        assert events is not None
+        needed = math.ceil(events * design.design_effect - 1e-9)
+        raise EventsOnly(needed, (
+            f"the {family.title} needs {needed:,} events ({family.method}); how many units to enrol depends on "
+            "how many of them have the event before the analysis: give event_probability, or median_control with "
+            "accrual and follow_up (exponential survival, uniform accrual), to turn events into units"))
     start = family.approximate_n(tested, es)
     if not math.isfinite(start) or start > MAX_N:
         raise InfeasibleDesign(
@@ -182,15 +224,25 @@ def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> S
             "would be needed"
         )
     notes: tuple[str, ...] = ()
-    if family.monotone:
-        n_individual, achieved = smallest_n(lambda n: family.power(tested, n, es), tested.power, start,
-                                            family.min_n)
+    if _by_cluster_means(family, design):
+        assert design.cluster is not None
+        m = design.cluster.size
+        k, achieved = smallest_n(lambda k: family.cluster_power(tested, k, es), tested.power,
+                                 start * design.design_effect / m, 2, MAX_N // m)
+        n = k * m
+        n_individual = _individual(design, n)
+        sizes = (n, math.ceil(design.allocation_ratio * k - 1e-9) * m)
     else:
-        n_individual, achieved, notes = _settled_n(family, tested, es, start)
-    n = _clustered(design, n_individual)
-    if n > MAX_N:
-        raise InfeasibleDesign(f"more than {MAX_N:,} per group would be needed once the design effect is applied")
-    sizes = family.group_sizes(design, n)
+        if family.monotone:
+            n_individual, achieved = smallest_n(lambda n: family.power(tested, n, es), tested.power, start,
+                                                family.min_n)
+        else:
+            n_individual, achieved, notes = _settled_n(family, tested, es, start)
+        n = _clustered(design, n_individual)
+        if n > MAX_N:
+            raise InfeasibleDesign(f"more than {MAX_N:,} per group would be needed once the design effect is "
+                                   "applied")
+        sizes = family.group_sizes(design, n)
     enrolled = tuple(enrolment(g, design.attrition) for g in sizes)
     clusters = None
     if design.cluster is not None:
@@ -223,6 +275,9 @@ def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> S
         individual_n_per_group=n_individual if design.cluster is not None else None,
         cluster_size=design.cluster.size if design.cluster is not None else None,
         clusters_per_group=clusters,
+        label=family.label(tested),
+        start_n=math.ceil(start - 1e-9) if family.formula(tested) is not None else None,
+        start_method=family.formula(tested),
     )
 
 
@@ -237,22 +292,28 @@ def _settled_n(family: Family, design: DesignBase, es: float, start: float) -> t
     high = design.model_copy(update={"power": 1 - (1 - design.power) / 4})
     bound = int(min(max(family.approximate_n(high, es), 2 * start, family.min_n + 64), _SCAN_LIMIT)) + 1
     power_of = lambda n: family.power(design, n, es)  # noqa: E731
-    n, first, scanned = smallest_n_from_which(power_of, design.power, bound, family.min_n)
+    lo = max(family.min_n, math.floor(family.scan_floor * start))
+    while lo > family.min_n and float(power_of(np.array([lo]))[0]) >= design.power:
+        lo = max(family.min_n, lo // 2)  # the floor must lie where power is still below the target
+    n, first, scanned = smallest_n_from_which(power_of, design.power, bound, lo)
     achieved = float(power_of(np.array([n]))[0])
+    checked = f"{lo:,} to {scanned:,}" if lo > family.min_n else f"up to {scanned:,}"
     note = (f"exact power is not monotone in n: {n} is the smallest n from which every larger n "
-            f"(checked up to {scanned:,}) reaches the target power")
+            f"(checked {checked}) reaches the target power")
     if first is not None:
         note += (f"; n = {first} already reaches it (power {float(power_of(np.array([first]))[0]):.4f}) "
                  "but some n between fall below")
     return n, achieved, (note,)
 
 
-def _minimum_effect(family: Family, tested: DesignBase, n: int) -> float | None:
+def _minimum_effect(family: Family, tested: DesignBase, n: int,
+                    fn: Callable[[np.ndarray, float], np.ndarray] | None = None) -> float | None:
     es = family.effect_size(tested)
     sign = -1.0 if (tested.alternative == "less" or (tested.alternative == "two-sided" and es < 0)) else 1.0
+    at = fn or (lambda n, es: family.power(tested, n, es))
 
     def gap(magnitude: float) -> float:
-        return float(family.power(tested, np.array([n]), sign * magnitude)[0]) - tested.power
+        return float(at(np.array([n]), sign * magnitude)[0]) - tested.power
 
     high = 1.0
     while gap(high) < 0:
@@ -277,6 +338,8 @@ def power_of(design: DesignBase, n: Any, effect_size: float | None = None) -> np
     tested = design.as_tested()
     es = family.effect_size(tested) if effect_size is None else effect_size
     units = np.asarray(n, dtype=float)
+    if _by_cluster_means(family, design):
+        return _power_fn(family, tested)(units, es)
     if design.cluster is not None:
         units = np.floor(units / design.design_effect + 1e-9)
     return family.power(tested, units, es)
@@ -286,7 +349,10 @@ def minimum_effect(design: DesignBase, n: int) -> float | None:
     """Smallest standardized effect (in the design's direction) reaching the target power with
     ``n`` analysable units per group (before the design effect, as in :func:`power_at`)."""
     family = design.family
-    return _minimum_effect(family, design.as_tested(), _individual(design, n))
+    tested = design.as_tested()
+    if _by_cluster_means(family, design):
+        return _minimum_effect(family, tested, n, _power_fn(family, tested))
+    return _minimum_effect(family, tested, _individual(design, n))
 
 
 def power_at(design: DesignBase, n: int) -> PowerAtN:
@@ -296,6 +362,10 @@ def power_at(design: DesignBase, n: int) -> PowerAtN:
     with a multiplicity block, power is per outcome at the per-test alpha.
     """
     family = design.family
+    if family.events_only(design):
+        raise InfeasibleDesign(
+            f"power at n = {n} depends on how many units have the event: give event_probability, or "
+            "median_control with accrual and follow_up", "design.effect")
     if n < family.min_n:
         raise InfeasibleDesign(f"n must be at least {family.min_n} for the {family.title}; got {n}", "n")
     n_individual = _individual(design, n)
@@ -306,14 +376,25 @@ def power_at(design: DesignBase, n: int) -> PowerAtN:
         )
     tested = design.as_tested()
     es = _checked_effect(family, tested)
-    mde = _minimum_effect(family, tested, n_individual)
+    if _by_cluster_means(family, design):
+        assert design.cluster is not None
+        if n < 2 * design.cluster.size:
+            raise InfeasibleDesign(
+                f"{n} units make fewer than 2 whole clusters of {design.cluster.size}; the t-test on cluster "
+                "means needs at least 2 clusters per group", "n")
+        fn = _power_fn(family, tested)
+        mde = _minimum_effect(family, tested, n, fn)
+        at_n = float(fn(np.array([n]), es)[0])
+    else:
+        mde = _minimum_effect(family, tested, n_individual)
+        at_n = float(family.power(tested, np.array([n_individual]), es)[0])
     sizes = family.group_sizes(design, n)
     events = family.expected_events(tested, n, es)  # among the units actually analysed
     return PowerAtN(
         test=family.name,
         n_per_group=n,
         n_total=sum(sizes),
-        power=float(family.power(tested, np.array([n_individual]), es)[0]),
+        power=at_n,
         alpha=design.alpha,
         alternative=family.alternative_for(design),
         target_power=design.power,

@@ -43,6 +43,7 @@ class TwoSampleT(Family):
     effect_model = MeanDifference
     example = {"difference": 4.0, "sd": 5.0}
     distributions = SHAPES
+    cluster_means = True
 
     def effect_size(self, design: DesignBase) -> float:
         return design.effect.standardized()
@@ -53,6 +54,22 @@ class TwoSampleT(Family):
         n2 = np.ceil(design.allocation_ratio * n1 - 1e-9)
         ncp = es / np.sqrt(1 / n1 + 1 / n2)
         return t_test_power(ncp, n1 + n2 - 2, design.alpha, design.alternative)
+
+    def cluster_power(self, design: DesignBase, clusters: np.ndarray, effect_size: float) -> np.ndarray:
+        """The pooled t-test on cluster means: ``k1`` and ``k2 = ceil(r k1)`` clusters, each mean with
+        variance ``sigma^2 (icc + (1 - icc) / m)``, so ``df = k1 + k2 - 2`` and
+        ``ncp = d / sqrt((icc + (1 - icc) / m)(1/k1 + 1/k2))`` (Donner & Klar 2000, ch. 5); exact for
+        normal outcomes and clusters of equal size."""
+        assert design.cluster is not None
+        k1 = np.asarray(clusters, dtype=float)
+        k2 = np.ceil(design.allocation_ratio * k1 - 1e-9)
+        ncp = effect_size / np.sqrt(design.cluster.mean_variance * (1 / k1 + 1 / k2))
+        return t_test_power(ncp, k1 + k2 - 2, design.alpha, design.alternative)
+
+    def label(self, design: DesignBase) -> str:
+        if design.cluster is not None and design.cluster.size_cv > 0:
+            return "approximation for unequal cluster sizes"
+        return "exact"
 
     def simulate(self, design, n, reps, rng, distribution="normal"):  # type: ignore[override]
         """Group 1: ``n`` outcomes with mean ``baseline``; group 2: ``ceil(ratio * n)`` with mean
