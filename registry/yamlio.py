@@ -410,7 +410,7 @@ def load_file(path: str | Path, display: str | None = None) -> Document:
         raise _unreadable(shown, exc) from None
     finally:
         os.close(fd)
-    return load_bytes(raw, shown)
+    return load_bytes_fast(raw, shown)
 
 
 def _parser() -> YAML:
@@ -505,17 +505,27 @@ def _c_loader() -> Any:
 
 
 _C = _c_loader()
+#: Texts holding these go the main way: line breaks in YAML 1.1 (libyaml) but ordinary characters
+#: in YAML 1.2, and the tab, which libyaml accepts where the main loader explains it as a mistake.
+_MAIN_WAY_CHARACTERS = ("\x85", "\u2028", "\u2029", "\t")
 #: Whether :func:`load_bytes_fast` has a C parser to use.
 FAST_LOADER = _C is not None
 
 
 def load_bytes_fast(raw: bytes, path: str) -> Document:
-    """:func:`load_bytes` through libyaml when available (about 20 times faster; used for the many
-    historical versions ``check`` reads from git). The values are the same as :func:`load_bytes`
-    gives; any text the C parser rejects, or one with a ``%YAML`` directive, goes the main way."""
+    """:func:`load_bytes` through libyaml when available (about 20 times faster; used for the spec
+    files ``check`` reads and the many historical versions it reads from git). The values and
+    positions are the same as :func:`load_bytes` gives: libyaml's marks count lines and characters
+    as ruamel's do. Only a clean document is built from libyaml's nodes; any text with a problem
+    (one the C parser rejects, a tag, a duplicate key, a cap reached ...) is loaded again the main
+    way, so its messages and positions are exactly the main loader's. So is a text with a ``%YAML``
+    directive, a YAML 1.1 line break (U+0085, U+2028, U+2029, which libyaml counts as lines) or a
+    tab (libyaml accepts tabs where the main loader explains them as a mistake)."""
     if _C is None or len(raw) > MAX_FILE_BYTES or b"%YAML" in raw:
         return load_bytes(raw, path)
     text = _decode(raw, path)
+    if any(ch in text for ch in _MAIN_WAY_CHARACTERS):
+        return load_text(text, path)
     composer_class, yaml_error = _C
     composer = composer_class(text)
     try:
@@ -527,7 +537,10 @@ def load_bytes_fast(raw: bytes, path: str) -> Document:
     finally:
         composer.dispose()
     doc = Document(path=path, data=None, source=text)
-    return _document(doc, roots, doc.source_lines)
+    try:
+        return _document(doc, roots, doc.source_lines)
+    except Exception:  # noqa: BLE001 - a problem (or a node shape libyaml builds differently): the main way says it
+        return load_text(text, path)
 
 
 def peek_scalars(raw: bytes, paths: tuple[tuple[str, ...], ...]) -> dict[tuple[str, ...], str] | None:

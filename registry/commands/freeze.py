@@ -8,12 +8,13 @@ from datetime import date, datetime, timezone
 from pathlib import Path
 
 from .. import __version__
-from ..audit import find_spec, registrations
-from ..canonical import content_hash
+from typing import TYPE_CHECKING
+
 from ..discovery import UsageError
-from ..git import GitProblem, Repository, find_repository
-from ..history import FUTURE_TOLERANCE
 from ..registration import format_message, tag_name
+
+if TYPE_CHECKING:
+    from ..git import Repository
 
 __all__ = ["freeze", "HELP", "add_arguments", "run"]
 
@@ -37,6 +38,10 @@ def _refuse(reasons: list[str]) -> int:
 
 
 def freeze(target: str, paths: list[str], *, today: date | None = None, now: datetime | None = None) -> int:
+    from ..audit import find_spec, registrations
+    from ..canonical import content_hash
+    from ..git import GitProblem, find_repository
+
     now = now or datetime.now(timezone.utc)
     today = today or now.astimezone().date()
     spec_file, report = find_spec(target, paths)
@@ -80,6 +85,8 @@ def freeze(target: str, paths: list[str], *, today: date | None = None, now: dat
 
 def _git_reasons(repo: Repository, path: Path, shown: str, now: datetime) -> list[str]:
     """Why git's state forbids a registration now (:class:`GitProblem` when git cannot tell)."""
+    from ..history import FUTURE_TOLERANCE
+
     reasons = []
     relpath = repo.relpath(path)
     head = repo.head()

@@ -8,24 +8,28 @@ import os
 import sys
 from pathlib import Path
 
-from ..audit import add_history
-from ..checks import CAUTION, SpecReport, check_files
-from ..config import config_loader
+from typing import TYPE_CHECKING
+
 from ..discovery import UsageError, discover
 from ..fsutil import WriteRefused, confined, write_atomic
-from ..summary import IndexRow, build_index, build_summary, render_time
-from ..summary.figure import SVG_MARKER
+
+if TYPE_CHECKING:
+    from ..checks import SpecReport
 
 __all__ = ["render", "HELP", "add_arguments", "run"]
 
 HELP = "write a preregistration-style summary (Markdown and HTML) of a spec, or of every spec with --all"
 
-#: How each kind of file render writes begins or identifies itself; only such files are overwritten.
-_OWN_MARKERS = {
-    ".md": "[//]: # (prespec ",
-    ".html": '<meta name="generator" content="prespec ',
-    ".svg": SVG_MARKER,
-}
+
+def _own_markers() -> dict[str, str]:
+    """How each kind of file render writes begins or identifies itself; only such files are overwritten."""
+    from ..summary.figure import SVG_MARKER
+
+    return {
+        ".md": "[//]: # (prespec ",
+        ".html": '<meta name="generator" content="prespec ',
+        ".svg": SVG_MARKER,
+    }
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -56,7 +60,7 @@ def _why_not(report: SpecReport) -> str:
 
 
 def _own(path: Path) -> bool:
-    marker = _OWN_MARKERS.get(path.suffix)
+    marker = _own_markers().get(path.suffix)
     if marker is None:
         return False
     try:
@@ -94,6 +98,11 @@ def _write(out: Path, files: dict[str, str]) -> list[Path]:
 def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = None,
            registry: list[str] | None = None, history: bool = True) -> int:
     """Render one spec (by id) or all; 0 when everything asked for was written, 1 otherwise."""
+    from ..audit import add_history
+    from ..checks import CAUTION, check_files
+    from ..config import config_loader
+    from ..summary import IndexRow, build_index, build_summary, render_time
+
     if all_specs == (spec_id is not None):
         raise UsageError("give a spec ID, or --all (with --out DIR), but not both")
     if all_specs and out is None:

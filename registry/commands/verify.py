@@ -7,18 +7,13 @@ import json
 from dataclasses import dataclass
 from datetime import date, datetime, timezone
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-from ..audit import find_spec, read_history, registrations
-from ..canonical import content_hash
-from ..checks import CAUTION
-from ..config import find_config, load_config
 from ..discovery import UsageError
-from ..git import GitProblem, Repository, find_repository
-from ..history import FUTURE_TOLERANCE, commit_day, show_change
 from ..problems import InvalidSpec
-from ..report import console
-from ..validation import validate_document
-from ..yamlio import load_bytes
+
+if TYPE_CHECKING:
+    from ..git import Repository
 
 __all__ = ["verify", "HELP", "add_arguments", "run"]
 
@@ -43,6 +38,10 @@ class _Check:
 
 
 def _repository(target: str, paths: list[str]) -> tuple[Repository, str, list[str], dict[str, str]]:
+    from ..audit import find_spec
+    from ..config import find_config, load_config
+    from ..git import find_repository
+
     try:
         spec_file, report = find_spec(target, paths)
     except UsageError:
@@ -66,6 +65,10 @@ def _repository(target: str, paths: list[str]) -> tuple[Repository, str, list[st
 
 
 def verify(target: str, paths: list[str], *, as_json: bool = False, now: datetime | None = None) -> int:
+    from ..checks import CAUTION
+    from ..git import GitProblem
+    from ..report import console
+
     repo, spec_id, extra, known = _repository(target, paths)
     try:
         checks = _verify(repo, spec_id, extra, known, now or datetime.now(timezone.utc))
@@ -85,6 +88,13 @@ def verify(target: str, paths: list[str], *, as_json: bool = False, now: datetim
 
 
 def _verify(repo: Repository, spec_id: str, extra: list[str], known: dict[str, str], now: datetime) -> list[_Check]:
+    from ..audit import registrations
+    from ..canonical import content_hash
+    from ..git import GitProblem
+    from ..history import FUTURE_TOLERANCE, commit_day
+    from ..validation import validate_document
+    from ..yamlio import load_bytes
+
     regs = registrations(repo, spec_id)
     if not regs:
         return [_Check("registration tag", False, f"no tag prespec/{spec_id}/vN in this repository (fetch the "
@@ -150,6 +160,10 @@ def _verify(repo: Repository, spec_id: str, extra: list[str], known: dict[str, s
 
 def _after_registration(repo: Repository, spec_id: str, registered: str, extra: list[str],
                         known_paths: dict[str, str], now: datetime) -> _Check:
+    from ..audit import read_history
+    from ..git import GitProblem
+    from ..history import show_change
+
     try:
         registry = read_history(repo, known_paths)
         registry.now = now
