@@ -132,3 +132,48 @@ def test_a_validation_error_in_a_current_file_keeps_its_position(run, tmp_path):
                    if f["kind"] == "invalid")
     assert (finding["field"], finding["line"], finding["column"]) == ("sample_size.per_group", line, 14)
 
+
+
+# -- the locked fields compared as parsed text before validation ---------------------------------------
+
+from registry.history import Snapshot, _same_locked_input  # noqa: E402
+
+from .history_helpers import Lab, spec_text  # noqa: E402
+
+BEFORE = "2020-01-10T10:00:00+01:00"
+AFTER = "2020-04-06T15:30:00+02:00"  # after the start 2020-03-02 of spec_text()
+
+
+def _drifted(run, lab: Lab) -> list[str]:
+    spec = run("check", "--json", lab.registry).json()["specs"][0]
+    return sorted(f["field"] for f in spec["findings"] if f["kind"] == "drift")
+
+
+def test_layout_and_free_field_edits_after_the_start_are_not_drift(run, tmp_path):
+    lab = Lab(tmp_path / "lab")
+    lab.write("mouse-diet.yaml", spec_text())
+    lab.commit("register", BEFORE)
+    relaid = spec_text(alpha="0.050", status="collecting", extra="notes: cohort 1\n").replace(
+        "  power: 0.8\n", "  power: 0.80   # unchanged\n")
+    lab.write("mouse-diet.yaml", relaid)
+    lab.commit("collecting", AFTER)
+    assert _drifted(run, lab) == []
+
+
+def test_an_index_in_a_registry_locked_field_locks_the_whole_list(run, tmp_path):
+    # the registry locks contacts[0].name; a change to the second contact changes that locked list
+    lab = Lab(tmp_path / "lab")
+    (lab.registry / ".prespec.yaml").write_text("locked_fields: ['contacts[0].name']\n", encoding="utf-8")
+    contacts = "contacts:\n  - name: Lab lead\n  - name: {second}\n"
+    lab.write("mouse-diet.yaml", spec_text(extra=contacts.format(second="Postdoc")))
+    lab.commit("register", BEFORE)
+    lab.write("mouse-diet.yaml", spec_text(extra=contacts.format(second="Technician")))
+    lab.commit("new second contact", AFTER)
+    assert _drifted(run, lab) == ["contacts[1].name"]
+
+
+def test_a_free_field_that_makes_a_version_invalid_is_still_compared():
+    # same locked text, but one version fails validation: the shortcut does not apply, the full comparison decides
+    good, bad = (Snapshot("a", spec_text().encode()), Snapshot("b", spec_text(status="not-a-status").encode()))
+    assert _same_locked_input(good, bad, ())
+    assert (good.spec is None) != (bad.spec is None)
