@@ -182,7 +182,7 @@ class Snapshot:
         if not self._parsed:
             self._parsed = True
             try:
-                self._data = load_bytes_fast(self.raw or b"", self.blob).data
+                self._data = load_bytes_fast(self.raw or b"", self.blob, main_way_problems=False).data
             except InvalidSpec as error:
                 self.error = "; ".join(p.message for p in error.problems[:3])
         return self._data

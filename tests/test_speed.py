@@ -93,6 +93,8 @@ def _cases() -> list[tuple[str, bytes]]:
         ("tab-after-value", valid.replace("alpha: 0.05", "alpha: 0.05\t# tab").encode()),
         ("unknown-key", (valid + "colour: blue\n").encode()),
         ("bad-type", valid.replace("per_group: 17", "per_group: [17]").encode()),
+        ("directive-after-bom", ("\ufeff%YAML 1.1\n---\n" + valid).encode()),
+        ("directive-word-in-text", (valid + "notes: |\n  %YAML is not a directive here\n").encode()),
     ]
     return cases
 
