@@ -179,3 +179,18 @@ def test_a_free_field_that_makes_a_version_invalid_is_still_compared():
     good, bad = (Snapshot("a", spec_text().encode()), Snapshot("b", spec_text(status="not-a-status").encode()))
     assert _same_locked_input(good, bad, ())
     assert (good.spec is None) != (bad.spec is None)
+
+
+def test_render_all_in_worker_processes_writes_what_one_process_writes(run, tmp_path, monkeypatch):
+    from registry.commands import render as render_command
+
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1800000000")  # the same render time in both runs
+    monkeypatch.setattr(render_command, "POOL_FROM", 10_000)
+    assert run("render", "--all", "--no-history", "--registry", EXAMPLES, "--out", tmp_path / "one").status == 0
+    monkeypatch.setattr(render_command, "POOL_FROM", 2)
+    monkeypatch.setattr(render_command.os, "cpu_count", lambda: 2)
+    assert run("render", "--all", "--no-history", "--registry", EXAMPLES, "--out", tmp_path / "pool").status == 0
+    one, pool = sorted((tmp_path / "one").iterdir()), sorted((tmp_path / "pool").iterdir())
+    assert [p.name for p in one] == [p.name for p in pool] and len(one) > 20
+    for a, b in zip(one, pool):
+        assert a.read_text(encoding="utf-8") == b.read_text(encoding="utf-8"), a.name

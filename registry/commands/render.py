@@ -14,7 +14,10 @@ from ..discovery import UsageError, discover
 from ..fsutil import WriteRefused, confined, write_atomic
 
 if TYPE_CHECKING:
+    from datetime import datetime
+
     from ..checks import SpecReport
+    from ..summary import Summary
 
 __all__ = ["render", "HELP", "add_arguments", "run"]
 
@@ -95,13 +98,54 @@ def _write(out: Path, files: dict[str, str]) -> list[Path]:
     return targets
 
 
+#: From this many summaries on, they are built (their figures drawn) in worker processes, one per core.
+POOL_FROM = 12
+
+
+def _summaries(jobs: list[tuple[SpecReport, Path]], rendered_at: datetime, index_link: bool) -> list[Summary]:
+    """Every job's summary, in order; in a pool of forked worker processes when there are many and
+    more than one core (where forking is unavailable or the pool fails, one after the other)."""
+    import multiprocessing
+
+    from ..summary import build_summary
+
+    workers = min(os.cpu_count() or 1, len(jobs))
+    if len(jobs) >= POOL_FROM and workers > 1 and "fork" in multiprocessing.get_all_start_methods():
+        from concurrent.futures import ProcessPoolExecutor
+        from concurrent.futures.process import BrokenProcessPool
+        from functools import partial
+        from pickle import PicklingError
+
+        _JOBS[:] = jobs  # forked workers inherit the jobs: only their numbers and the summaries are sent
+        build = partial(_build_summary, rendered_at=rendered_at, index_link=index_link)
+        try:
+            with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork")) as pool:
+                return list(pool.map(build, range(len(jobs)), chunksize=max(1, len(jobs) // (4 * workers))))
+        except (BrokenProcessPool, PicklingError, OSError):
+            pass  # e.g. no shared memory for the pool's queues: build them here instead
+        finally:
+            _JOBS.clear()
+    return [build_summary(report, path, rendered_at, index_link=index_link) for report, path in jobs]
+
+
+#: The jobs of the pool running now, read by its forked workers.
+_JOBS: list[tuple[SpecReport, Path]] = []
+
+
+def _build_summary(index: int, *, rendered_at: datetime, index_link: bool) -> Summary:
+    from ..summary import build_summary
+
+    report, path = _JOBS[index]
+    return build_summary(report, path, rendered_at, index_link=index_link)
+
+
 def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = None,
            registry: list[str] | None = None, history: bool = True) -> int:
     """Render one spec (by id) or all; 0 when everything asked for was written, 1 otherwise."""
     from ..audit import add_history
     from ..checks import CAUTION, check_files
     from ..config import config_loader
-    from ..summary import IndexRow, build_index, build_summary, render_time
+    from ..summary import IndexRow, build_index, render_time
 
     if all_specs == (spec_id is not None):
         raise UsageError("give a spec ID, or --all (with --out DIR), but not both")
@@ -137,13 +181,15 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     files: dict[str, str] = {}
     rows: list[IndexRow] = []
     failed = False
+    jobs = [(report, files_by_path[report.path].path) for report in reports if _renderable(report)]
+    summaries = iter(_summaries(jobs, rendered_at, all_specs))
     for report in reports:
         if not _renderable(report):
             print(_why_not(report), file=sys.stderr)
             rows.append(IndexRow(report, None))
             failed = True
             continue
-        summary = build_summary(report, files_by_path[report.path].path, rendered_at, index_link=all_specs)
+        summary = next(summaries)
         files.update(summary.files())
         rows.append(IndexRow(report, f"{summary.spec_id}.html"))
     if all_specs:
