@@ -60,6 +60,7 @@ def pilot(file: str, column: str, *, confidence: float = 0.8, as_json: bool = Fa
 
 
 def _print_human(s: PilotSummary) -> None:
+    from ..checks import CAUTION
     from ..report import console
 
     out = console()

@@ -114,14 +114,13 @@ def _summaries(jobs: list[tuple[SpecReport, Path]], rendered_at: datetime, index
         from concurrent.futures import ProcessPoolExecutor
         from concurrent.futures.process import BrokenProcessPool
         from functools import partial
-        from pickle import PicklingError
 
         _JOBS[:] = jobs  # forked workers inherit the jobs: only their numbers and the summaries are sent
         build = partial(_build_summary, rendered_at=rendered_at, index_link=index_link)
         try:
             with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork")) as pool:
                 return list(pool.map(build, range(len(jobs)), chunksize=max(1, len(jobs) // (4 * workers))))
-        except (BrokenProcessPool, PicklingError, OSError):
+        except (BrokenProcessPool, OSError):
             pass  # e.g. no shared memory for the pool's queues: build them here instead
         finally:
             _JOBS.clear()

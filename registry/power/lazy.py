@@ -13,6 +13,7 @@ submodule is imported the first time one of its attributes is read.
 from __future__ import annotations
 
 import importlib
+from collections.abc import Callable
 from types import ModuleType
 from typing import Any
 
@@ -22,8 +23,9 @@ __all__ = ["stats", "optimize", "integrate"]
 class _LazyModule:
     """Stands for the module ``name`` and imports it when an attribute is first read."""
 
-    def __init__(self, name: str) -> None:
+    def __init__(self, name: str, load: Callable[[], ModuleType]) -> None:
         self._name = name
+        self._load = load
         self._module: ModuleType | None = None
 
     def __getattr__(self, attr: str) -> Any:
@@ -31,13 +33,13 @@ class _LazyModule:
             raise AttributeError(attr)
         module = self._module
         if module is None:
-            module = self._module = importlib.import_module(self._name)
+            module = self._module = self._load()
         return getattr(module, attr)
 
     def __repr__(self) -> str:
         return f"<scipy module {self._name!r}, loaded on first use>"
 
 
-stats: Any = _LazyModule("scipy.stats")
-optimize: Any = _LazyModule("scipy.optimize")
-integrate: Any = _LazyModule("scipy.integrate")
+stats: Any = _LazyModule("scipy.stats", lambda: importlib.import_module("scipy.stats"))
+optimize: Any = _LazyModule("scipy.optimize", lambda: importlib.import_module("scipy.optimize"))
+integrate: Any = _LazyModule("scipy.integrate", lambda: importlib.import_module("scipy.integrate"))
