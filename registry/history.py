@@ -187,6 +187,12 @@ class Snapshot:
                 self.error = "; ".join(p.message for p in error.problems[:3])
         return self._data
 
+    def adopt(self, data: Any, spec: Spec) -> None:
+        """Take the parsed and validated content of the same bytes loaded elsewhere (the working-tree
+        file when it equals this version), so it is not parsed and validated twice."""
+        if not self._parsed:
+            self._data, self._parsed, self._spec, self._validated = data, True, spec, True
+
     def _peek(self) -> dict[tuple[str, ...], str] | None:
         if self._parsed or self.raw is None:
             return None
