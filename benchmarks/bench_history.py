@@ -53,7 +53,9 @@ analysis_plan: {plan}
 """).encode()
 
 
-def build(root: Path, specs: int) -> None:
+def build(root: Path, specs: int, spec=None) -> None:
+    """``specs`` specs x :data:`VERSIONS` dated versions, one commit each (``spec(i, version, start)`` writes one)."""
+    spec = spec or _spec
     repo = init_repository(root)
     chunks: list[bytes] = []
     mark = 0
@@ -66,7 +68,7 @@ def build(root: Path, specs: int) -> None:
     for version in range(VERSIONS):
         for i in range(specs):
             mark += 1
-            blob = _spec(i, version, start)
+            blob = spec(i, version, start)
             chunks.append(b"blob\nmark :%d\ndata %d\n%s\n" % (mark, len(blob), blob))
             blob_mark = mark
             mark += 1

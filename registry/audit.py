@@ -230,6 +230,10 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
             continue
         status.repositories.append({"root": str(root), "head": registry.head, "shallow": registry.shallow,
                                     "detached": registry.detached, "commits": len(registry.commits)})
+        for report, _ in members:  # a committed file parsed and validated once, not again from git
+            head = registry.head_snapshot(report.id) if report.id and report.spec and report.document else None
+            if head is not None and head.raw is not None and head.raw == report.document.source.encode("utf-8"):
+                head.adopt(report.document.data, report.spec)
         seen: set[str] = set()
         for report, spec_file in members:
             if report.id is None:

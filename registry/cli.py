@@ -1,4 +1,9 @@
-"""The ``prespec`` command line: ``main(argv) -> int`` so tests call it directly."""
+"""The ``prespec`` command line: ``main(argv) -> int`` so tests call it directly.
+
+Start-up is kept short (``prespec check`` runs in pre-commit hooks): the command modules import
+the statistics, git, YAML and output machinery inside the functions that use them, and only the
+command being run gets its options built, so ``--help`` and ``--version`` load none of it.
+"""
 
 from __future__ import annotations
 
@@ -6,6 +11,7 @@ import argparse
 import os
 import sys
 import traceback
+from collections.abc import Sequence
 from types import ModuleType
 
 from . import __version__
@@ -27,7 +33,14 @@ class _Parser(argparse.ArgumentParser):
         raise UsageError(f"{self.prog}: {message}")
 
 
-def build_parser() -> argparse.ArgumentParser:
+def _command_in(argv: Sequence[str]) -> str | None:
+    """The command ``argv`` names: its first word that is not an option (the top level has no
+    option taking a value)."""
+    return next((arg for arg in argv if not arg.startswith("-")), None)
+
+
+def build_parser(argv: Sequence[str] | None = None) -> argparse.ArgumentParser:
+    """The parser; given ``argv``, only the command it names gets its options (the rest, their help line)."""
     parser = _Parser(
         prog="prespec",
         description="Keep planned experiments as YAML specs in git: validate them, recompute their sample "
@@ -38,14 +51,16 @@ def build_parser() -> argparse.ArgumentParser:
     for module in COMMANDS:
         name = module.__name__.rsplit(".", 1)[-1]
         command = sub.add_parser(name, help=module.HELP, description=module.HELP)
-        module.add_arguments(command)
+        if argv is None or name == _command_in(argv):
+            module.add_arguments(command)
         command.set_defaults(run=module.run)
     return parser
 
 
 def main(argv: list[str] | None = None) -> int:
     """Run prespec; return the exit status (0 ok, 1 findings, 2 usage error)."""
-    parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
+    parser = build_parser(argv)
     try:
         args = parser.parse_args(argv)
         if not getattr(args, "command", None):

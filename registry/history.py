@@ -186,10 +186,16 @@ class Snapshot:
         if not self._parsed:
             self._parsed = True
             try:
-                self._data = load_bytes_fast(self.raw or b"", self.blob).data
+                self._data = load_bytes_fast(self.raw or b"", self.blob, main_way_problems=False).data
             except InvalidSpec as error:
                 self.error = "; ".join(p.message for p in error.problems[:3])
         return self._data
+
+    def adopt(self, data: Any, spec: Spec) -> None:
+        """Take the parsed and validated content of the same bytes loaded elsewhere (the working-tree
+        file when it equals this version), so it is not parsed and validated twice."""
+        if not self._parsed:
+            self._data, self._parsed, self._spec, self._validated = data, True, spec, True
 
     def _peek(self) -> dict[tuple[str, ...], str] | None:
         if self._parsed or self.raw is None:
@@ -661,6 +667,9 @@ def _changes(base: Snapshot, new: Snapshot, extra_locked: Sequence[str], after: 
         return []
     if any(other.raw is not None and other.raw == new.raw for other in others):
         return []  # the merge took one parent's version whole
+    if not free and not others and _same_locked_input(base, new, extra_locked) and \
+            (base.spec is None) == (new.spec is None):
+        return []  # the locked fields read alike (comments, layout, free fields aside): nothing locked changed
     if free:
         locked_old, full_old = base.views(extra_locked)
         locked_new, full_new = new.views(extra_locked)
@@ -696,6 +705,28 @@ def _changes(base: Snapshot, new: Snapshot, extra_locked: Sequence[str], after: 
             continue
         out.append(FieldChange(path, old_value, new_value, False, after, None))
     return out
+
+
+def _same_locked_input(base: Snapshot, new: Snapshot, extra_locked: Sequence[str]) -> bool:
+    """Whether both versions write the same locked values, compared as canonical JSON of the parsed
+    text before any validation (key order, layout, comments and number spelling aside).
+
+    The spec model validates each locked field from its own text only, so equal text means equal
+    validated values for two valid versions; validation and the locked views are then not needed.
+    """
+    old, new_data = base.data, new.data
+    if not isinstance(old, dict) or not isinstance(new_data, dict):
+        return False
+
+    locs = [dotted_loc(path) for path in extra_locked]
+    locs = [loc[: next((i for i, part in enumerate(loc) if isinstance(part, int)), len(loc))] for loc in locs]
+
+    def canonical(data: dict[str, Any]) -> str:  # an index in a registry's locked field locks the whole list
+        top = {key: _plain(value) for key, value in data.items() if key in _TOP_LOCKED}
+        extra = [[] if (value := _get(data, loc)) is MISSING else [_plain(value)] for loc in locs]
+        return json.dumps([top, extra], sort_keys=True, ensure_ascii=False, default=str)
+
+    return canonical(old) == canonical(new_data)
 
 
 def _covering(added: list[dict[str, Any]], path: str) -> dict[str, Any] | None:

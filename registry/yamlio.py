@@ -67,6 +67,8 @@ _SURROGATE_RE = re.compile("[\ud800-\udfff]")
 _NULL_TEXTS = ("", "~", "null", "Null", "NULL")
 _BOOL_TEXTS = {"true": True, "false": False}
 _DIRECTIVE_RE = re.compile(r"^%YAML[ \t]+([^\s#]*)", re.MULTILINE)
+#: A line starting with %YAML: a directive (the main loader handles those), or text that could be one.
+_DIRECTIVE_BYTES_RE = re.compile(rb"^(?:\xef\xbb\xbf)?%YAML", re.MULTILINE)
 _UTF32_BOMS = (b"\xff\xfe\x00\x00", b"\x00\x00\xfe\xff")
 _UTF16_BOMS = (b"\xff\xfe", b"\xfe\xff")
 
@@ -410,7 +412,7 @@ def load_file(path: str | Path, display: str | None = None) -> Document:
         raise _unreadable(shown, exc) from None
     finally:
         os.close(fd)
-    return load_bytes(raw, shown)
+    return load_bytes_fast(raw, shown)
 
 
 def _parser() -> YAML:
@@ -505,17 +507,31 @@ def _c_loader() -> Any:
 
 
 _C = _c_loader()
+#: Texts holding these go the main way: line breaks in YAML 1.1 (libyaml) but ordinary characters
+#: in YAML 1.2, and the tab, which libyaml accepts where the main loader explains it as a mistake.
+_YAML_1_1_BREAKS = ("\x85", "\u2028", "\u2029")
+_MAIN_WAY_CHARACTERS = (*_YAML_1_1_BREAKS, "\t")
 #: Whether :func:`load_bytes_fast` has a C parser to use.
 FAST_LOADER = _C is not None
 
 
-def load_bytes_fast(raw: bytes, path: str) -> Document:
-    """:func:`load_bytes` through libyaml when available (about 20 times faster; used for the many
-    historical versions ``check`` reads from git). The values are the same as :func:`load_bytes`
-    gives; any text the C parser rejects, or one with a ``%YAML`` directive, goes the main way."""
-    if _C is None or len(raw) > MAX_FILE_BYTES or b"%YAML" in raw:
+def load_bytes_fast(raw: bytes, path: str, *, main_way_problems: bool = True) -> Document:
+    """:func:`load_bytes` through libyaml when available (about 20 times faster; used for the spec
+    files ``check`` reads and the many historical versions it reads from git). The values and
+    positions are the same as :func:`load_bytes` gives: libyaml's marks count lines and characters
+    as ruamel's do. Only a clean document is built from libyaml's nodes; any text with a problem
+    (one the C parser rejects, a tag, a duplicate key, a cap reached ...) is loaded again the main
+    way, so its messages and positions are exactly the main loader's. So is a text with a ``%YAML``
+    directive, a YAML 1.1 line break (U+0085, U+2028, U+2029, which libyaml counts as lines) or a
+    tab (libyaml accepts tabs where the main loader explains them as a mistake).
+
+    ``main_way_problems=False`` (for historical versions, where only whether a version is valid
+    matters) reports the problems found in libyaml's nodes as they are, without loading again."""
+    if _C is None or len(raw) > MAX_FILE_BYTES or _DIRECTIVE_BYTES_RE.search(raw) is not None:
         return load_bytes(raw, path)
     text = _decode(raw, path)
+    if any(ch in text for ch in (_MAIN_WAY_CHARACTERS if main_way_problems else _YAML_1_1_BREAKS)):
+        return load_text(text, path)
     composer_class, yaml_error = _C
     composer = composer_class(text)
     try:
@@ -527,7 +543,14 @@ def load_bytes_fast(raw: bytes, path: str) -> Document:
     finally:
         composer.dispose()
     doc = Document(path=path, data=None, source=text)
-    return _document(doc, roots, doc.source_lines)
+    try:
+        return _document(doc, roots, doc.source_lines)
+    except InvalidSpec:
+        if not main_way_problems:
+            raise
+        return load_text(text, path)
+    except Exception:  # noqa: BLE001 - a node shape libyaml builds differently (a recursive alias): the main way
+        return load_text(text, path)
 
 
 def peek_scalars(raw: bytes, paths: tuple[tuple[str, ...], ...]) -> dict[tuple[str, ...], str] | None:
@@ -538,7 +561,7 @@ def peek_scalars(raw: bytes, paths: tuple[tuple[str, ...], ...]) -> dict[tuple[s
     Returns ``None`` when it cannot answer with certainty (no C parser, a syntax error, an alias or
     a complex key on the way); the caller then loads the text in full.
     """
-    if _C is None or len(raw) > MAX_FILE_BYTES or b"%YAML" in raw:
+    if _C is None or len(raw) > MAX_FILE_BYTES or _DIRECTIVE_BYTES_RE.search(raw) is not None:
         return None
     import yaml as pyyaml
 

@@ -5,11 +5,12 @@ from __future__ import annotations
 import argparse
 import sys
 
-from ..audit import add_history
-from ..checks import CAUTION, SpecReport, check_files
-from ..config import config_loader
+from typing import TYPE_CHECKING
+
 from ..discovery import UsageError, discover
-from ..report import console, print_findings, print_table, summary_line, to_json
+
+if TYPE_CHECKING:
+    from ..checks import SpecReport
 
 __all__ = ["check", "HELP", "add_arguments", "run"]
 
@@ -37,6 +38,11 @@ def run(args: argparse.Namespace) -> int:
 def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | None = None,
           history: bool = True, workers: int = 1) -> int:
     """Check every spec under ``paths``; 0 when no error finding, 1 otherwise."""
+    from ..audit import add_history
+    from ..checks import CAUTION, check_files
+    from ..config import config_loader
+    from ..report import console, print_findings, print_table, summary_line, to_json
+
     if oversize_margin is not None and not 0 <= oversize_margin <= 10:
         raise UsageError(f"--oversize-margin must be between 0 and 10; got {oversize_margin!r}")
     if not 1 <= workers <= 1024:

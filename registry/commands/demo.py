@@ -14,9 +14,7 @@ from pathlib import Path
 
 from ..discovery import UsageError
 from ..fsutil import move_within, write_atomic
-from ..git import GitProblem, init_repository
 from ..registration import format_message, tag_name
-from .check import check
 
 __all__ = ["demo", "build_demo", "HELP", "add_arguments", "run", "EXAMPLES"]
 
@@ -65,6 +63,8 @@ def _edit(path: Path, pattern: str, replacement: str, *, count: int = 1) -> None
 
 def build_demo(target: Path) -> Path:
     """Write the demo registry into ``target`` (new or empty) and return the registry folder."""
+    from ..git import init_repository
+
     if not EXAMPLES.is_dir():
         raise UsageError(f"demo: the example registry is not installed ({EXAMPLES})")
     repo = init_repository(target)
@@ -134,6 +134,9 @@ def build_demo(target: Path) -> Path:
 
 
 def demo(folder: str | None) -> int:
+    from ..git import GitProblem
+    from .check import check
+
     if folder is None:
         target = Path(tempfile.mkdtemp(prefix="prespec-demo-"))
     else:

@@ -5,8 +5,6 @@ from __future__ import annotations
 import argparse
 import sys
 
-from ..audit import find_spec
-from ..canonical import canonical_json, content_hash
 
 __all__ = ["hash", "HELP", "add_arguments", "run"]
 
@@ -24,6 +22,9 @@ def run(args: argparse.Namespace) -> int:
 
 
 def hash(target: str, paths: list[str], *, canonical: bool = False) -> int:  # noqa: A001 - command name
+    from ..audit import find_spec
+    from ..canonical import canonical_json, content_hash
+
     _, report = find_spec(target, paths)
     if report.spec is None:
         print(f"{report.path}: not a valid spec, so it has no canonical content:", file=sys.stderr)

@@ -7,18 +7,13 @@ import json
 import sys
 from pathlib import Path
 
-from rich.table import Table
-from rich.text import Text
+from typing import TYPE_CHECKING
 
-from ..audit import find_spec, read_history, registrations
-from ..audit import spec_history as audit_spec_history
-from ..checks import CAUTION
-from ..config import find_config, load_config
 from ..discovery import UsageError
-from ..git import GitProblem, find_repository
-from ..history import SpecHistory, commit_day, show_change
 from ..problems import InvalidSpec
-from ..report import console
+
+if TYPE_CHECKING:
+    from ..history import SpecHistory
 
 __all__ = ["history", "HELP", "add_arguments", "run"]
 
@@ -37,6 +32,8 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _locked_extra(spec_file) -> list[str]:
+    from ..config import find_config, load_config
+
     try:
         return load_config(find_config(spec_file.root)).locked_fields
     except InvalidSpec:
@@ -50,6 +47,11 @@ FAILING = ("drift", "unreadable", "untracked")
 def history(target: str, paths: list[str], *, as_json: bool = False) -> int:
     """Print one spec's changelog; 0 when it shows no drift, 1 on drift or when git cannot give a history
     for it (never committed, or versions git cannot read)."""
+    from ..audit import find_spec, read_history, registrations
+    from ..audit import spec_history as audit_spec_history
+    from ..checks import CAUTION
+    from ..git import GitProblem, find_repository
+
     try:
         spec_file, report = find_spec(target, paths)
     except UsageError:
@@ -90,6 +92,12 @@ def history(target: str, paths: list[str], *, as_json: bool = False) -> int:
 
 
 def _print(spec_history: SpecHistory, tags: list[str]) -> None:
+    from rich.table import Table
+    from rich.text import Text
+
+    from ..history import commit_day, show_change
+    from ..report import console
+
     out = console()
     table = Table(show_edge=False, header_style="bold", pad_edge=False)
     for column in ("date", "commit", "author", "field", "change", "when", "status"):

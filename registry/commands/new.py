@@ -10,9 +10,6 @@ from pathlib import Path
 
 from ..discovery import UsageError
 from ..fsutil import WriteRefused, confined, write_atomic
-from ..model import ID_PATTERN, SCHEMA_ID
-from ..power import design_from_params, family_names, get_family, solve_sample_size
-from ..power.catalog import UnknownFamily
 
 __all__ = ["new", "template", "HELP", "add_arguments", "run"]
 
@@ -20,6 +17,8 @@ HELP = "write a new spec from a commented template"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    from ..power.catalog import family_names
+
     parser.add_argument("id", metavar="ID", help="the spec id: lowercase letters, digits and hyphens")
     parser.add_argument("--dir", default=".", metavar="DIR", help="registry folder to write ID.yaml into")
     parser.add_argument("--test", default="two-sample-t", metavar="FAMILY",
@@ -33,6 +32,8 @@ def run(args: argparse.Namespace) -> int:
 
 def _schema_reference(folder: Path) -> str:
     """Relative path from ``folder`` to the nearest schemas/ copy of the spec schema."""
+    from ..model import SCHEMA_ID
+
     for candidate in (folder.resolve(), *folder.resolve().parents):
         schema = candidate / "schemas" / SCHEMA_ID
         if schema.is_file():
@@ -49,6 +50,8 @@ def _yaml_scalar(value: object) -> str:
 
 
 def template(spec_id: str, test: str, title: str | None, schema_ref: str, today: date | None = None) -> str:
+    from ..power import design_from_params, get_family, solve_sample_size
+
     family = get_family(test)
     start = (today or date.today()) + timedelta(days=90)
     effect = dict(family.example)
@@ -97,6 +100,9 @@ amendments: []
 
 
 def new(spec_id: str, *, folder: str = ".", test: str = "two-sample-t", title: str | None = None) -> int:
+    from ..model import ID_PATTERN, SCHEMA_ID
+    from ..power.catalog import UnknownFamily, get_family
+
     if not re.fullmatch(ID_PATTERN, spec_id) or len(spec_id) > 64:
         raise UsageError(f"id must be lowercase letters, digits and single hyphens (at most 64); got {spec_id!r}")
     try:

@@ -6,10 +6,12 @@ import argparse
 import json
 import math
 
-from ..checks import CAUTION
+from typing import TYPE_CHECKING
+
 from ..discovery import UsageError
-from ..pilot import InvalidPilot, PilotSummary, read_pilot
-from ..report import console
+
+if TYPE_CHECKING:
+    from ..pilot import PilotSummary
 
 __all__ = ["pilot", "HELP", "add_arguments", "run"]
 
@@ -41,6 +43,9 @@ def run(args: argparse.Namespace) -> int:
 
 def pilot(file: str, column: str, *, confidence: float = 0.8, as_json: bool = False) -> int:
     """Print the pilot summary of ``column`` in ``file``; 0 on success."""
+    from ..checks import CAUTION
+    from ..pilot import InvalidPilot, read_pilot
+
     try:
         summary = read_pilot(file, column, confidence)
     except InvalidPilot as error:
@@ -55,6 +60,9 @@ def pilot(file: str, column: str, *, confidence: float = 0.8, as_json: bool = Fa
 
 
 def _print_human(s: PilotSummary) -> None:
+    from ..checks import CAUTION
+    from ..report import console
+
     out = console()
     level = f"{s.confidence:.0%}"
     missing = f" ({s.missing} missing cell{'s' if s.missing != 1 else ''} skipped)" if s.missing else ""

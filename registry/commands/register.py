@@ -8,17 +8,15 @@ import json
 import sys
 from datetime import date, datetime, timezone
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from .. import __version__
-from ..audit import find_spec, registrations
-from ..canonical import content_hash
-from ..config import RegistryConfig, find_config, load_config, trust_paths
 from ..discovery import UsageError
-from ..git import GitProblem, Repository, find_repository
-from ..history import FUTURE_TOLERANCE
 from ..problems import InvalidSpec
 from ..registration import format_message, tag_name
+
+if TYPE_CHECKING:
+    from ..git import Repository
 
 __all__ = ["register", "HELP", "add_arguments", "run"]
 
@@ -70,6 +68,10 @@ def _template_reasons(report: Any) -> list[str]:
 def register(target: str, paths: list[str], *, authorities: list[str] | None = None,
              request_file: str | None = None, reply_file: str | None = None, timeout: float | None = None,
              as_json: bool = False, today: date | None = None, now: datetime | None = None) -> int:
+    from ..audit import find_spec, registrations
+    from ..config import find_config, load_config, trust_paths
+    from ..git import GitProblem, find_repository
+
     now = now or datetime.now(timezone.utc)
     today = today or now.astimezone().date()
     spec_file, report = find_spec(target, paths)
@@ -148,6 +150,8 @@ def register(target: str, paths: list[str], *, authorities: list[str] | None = N
 
 def _committed_hash(repo: Repository, head: str, relpath: str, reasons: list[str]) -> str | None:
     """The content hash of the spec as committed at ``head`` (the blob the tag vouches for)."""
+    from ..canonical import content_hash
+
     from ..validation import validate_document
     from ..yamlio import load_bytes
 
@@ -222,6 +226,8 @@ def _tokens(text: bytes, authorities: list[str], reply_file: str | None, timeout
 
 def _git_reasons(repo: Repository, path: Path, shown: str, now: datetime) -> list[str]:
     """Why git's state forbids a registration now (:class:`GitProblem` when git cannot tell)."""
+    from ..history import FUTURE_TOLERANCE
+
     reasons = []
     relpath = repo.relpath(path)
     head = repo.head()

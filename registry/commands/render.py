@@ -8,24 +8,31 @@ import os
 import sys
 from pathlib import Path
 
-from ..audit import add_history
-from ..checks import CAUTION, SpecReport, check_files
-from ..config import config_loader
+from typing import TYPE_CHECKING
+
 from ..discovery import UsageError, discover
 from ..fsutil import WriteRefused, confined, write_atomic
-from ..summary import IndexRow, build_index, build_summary, render_time
-from ..summary.figure import SVG_MARKER
+
+if TYPE_CHECKING:
+    from datetime import datetime
+
+    from ..checks import SpecReport
+    from ..summary import Summary
 
 __all__ = ["render", "HELP", "add_arguments", "run"]
 
 HELP = "write a preregistration-style summary (Markdown and HTML) of a spec, or of every spec with --all"
 
-#: How each kind of file render writes begins or identifies itself; only such files are overwritten.
-_OWN_MARKERS = {
-    ".md": "[//]: # (prespec ",
-    ".html": '<meta name="generator" content="prespec ',
-    ".svg": SVG_MARKER,
-}
+
+def _own_markers() -> dict[str, str]:
+    """How each kind of file render writes begins or identifies itself; only such files are overwritten."""
+    from ..summary.figure import SVG_MARKER
+
+    return {
+        ".md": "[//]: # (prespec ",
+        ".html": '<meta name="generator" content="prespec ',
+        ".svg": SVG_MARKER,
+    }
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -56,7 +63,7 @@ def _why_not(report: SpecReport) -> str:
 
 
 def _own(path: Path) -> bool:
-    marker = _OWN_MARKERS.get(path.suffix)
+    marker = _own_markers().get(path.suffix)
     if marker is None:
         return False
     try:
@@ -91,9 +98,54 @@ def _write(out: Path, files: dict[str, str]) -> list[Path]:
     return targets
 
 
+#: From this many summaries on, they are built (their figures drawn) in worker processes, one per core.
+POOL_FROM = 12
+
+
+def _summaries(jobs: list[tuple[SpecReport, Path]], rendered_at: datetime, index_link: bool) -> list[Summary]:
+    """Every job's summary, in order; in a pool of forked worker processes when there are many and
+    more than one core (where forking is unavailable or the pool fails, one after the other)."""
+    import multiprocessing
+
+    from ..summary import build_summary
+
+    workers = min(os.cpu_count() or 1, len(jobs))
+    if len(jobs) >= POOL_FROM and workers > 1 and "fork" in multiprocessing.get_all_start_methods():
+        from concurrent.futures import ProcessPoolExecutor
+        from concurrent.futures.process import BrokenProcessPool
+        from functools import partial
+
+        _JOBS[:] = jobs  # forked workers inherit the jobs: only their numbers and the summaries are sent
+        build = partial(_build_summary, rendered_at=rendered_at, index_link=index_link)
+        try:
+            with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork")) as pool:
+                return list(pool.map(build, range(len(jobs)), chunksize=max(1, len(jobs) // (4 * workers))))
+        except (BrokenProcessPool, OSError):
+            pass  # e.g. no shared memory for the pool's queues: build them here instead
+        finally:
+            _JOBS.clear()
+    return [build_summary(report, path, rendered_at, index_link=index_link) for report, path in jobs]
+
+
+#: The jobs of the pool running now, read by its forked workers.
+_JOBS: list[tuple[SpecReport, Path]] = []
+
+
+def _build_summary(index: int, *, rendered_at: datetime, index_link: bool) -> Summary:
+    from ..summary import build_summary
+
+    report, path = _JOBS[index]
+    return build_summary(report, path, rendered_at, index_link=index_link)
+
+
 def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = None,
            registry: list[str] | None = None, history: bool = True) -> int:
     """Render one spec (by id) or all; 0 when everything asked for was written, 1 otherwise."""
+    from ..audit import add_history
+    from ..checks import CAUTION, check_files
+    from ..config import config_loader
+    from ..summary import IndexRow, build_index, render_time
+
     if all_specs == (spec_id is not None):
         raise UsageError("give a spec ID, or --all (with --out DIR), but not both")
     if all_specs and out is None:
@@ -128,13 +180,15 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     files: dict[str, str] = {}
     rows: list[IndexRow] = []
     failed = False
+    jobs = [(report, files_by_path[report.path].path) for report in reports if _renderable(report)]
+    summaries = iter(_summaries(jobs, rendered_at, all_specs))
     for report in reports:
         if not _renderable(report):
             print(_why_not(report), file=sys.stderr)
             rows.append(IndexRow(report, None))
             failed = True
             continue
-        summary = build_summary(report, files_by_path[report.path].path, rendered_at, index_link=all_specs)
+        summary = next(summaries)
         files.update(summary.files())
         rows.append(IndexRow(report, f"{summary.spec_id}.html"))
     if all_specs:

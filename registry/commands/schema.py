@@ -7,7 +7,6 @@ from pathlib import Path
 
 from ..discovery import UsageError
 from ..fsutil import write_atomic
-from ..schema import DOCS_FILE, SCHEMA_FILE, docs_text, schema_text
 
 __all__ = ["schema", "HELP", "add_arguments", "run"]
 
@@ -15,6 +14,8 @@ HELP = "write the spec JSON Schema (and refresh the docs' field table) from the 
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    from ..schema import DOCS_FILE, SCHEMA_FILE
+
     parser.add_argument("--out", default=str(SCHEMA_FILE), metavar="FILE",
                         help=f"where to write the schema (default: {SCHEMA_FILE}); '-' prints it")
     parser.add_argument("--docs", default=None, metavar="FILE",
@@ -26,6 +27,8 @@ def run(args: argparse.Namespace) -> int:
 
 
 def schema(out: str, *, docs: str | None = None) -> int:
+    from ..schema import docs_text, schema_text
+
     text = schema_text()
     if out == "-":
         print(text, end="")

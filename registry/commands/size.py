@@ -12,16 +12,14 @@ import json
 import math
 import re
 import sys
-from typing import Any, Callable
+from typing import TYPE_CHECKING, Any, Callable
 
-from ..checks import CAUTION
 from ..discovery import UsageError
-from ..power import (EventsOnly, InfeasibleDesign, InvalidDesign, PowerAtN, SampleSize, UnknownFamily,
-                     design_from_params, enrolment, family_names, power_at, solve_sample_size)
-from ..power.assumptions import DEFAULT_REPS, DEFAULT_SEED, MAX_REPS, SimulationPlan
-from ..power.base import DesignBase
-from ..power.simulate import InvalidSimulation, SimulatedPower, chunk_reps, simulated_power
-from ..report import console
+
+if TYPE_CHECKING:
+    from ..power import EventsOnly, PowerAtN, SampleSize
+    from ..power.base import DesignBase
+    from ..power.simulate import SimulatedPower
 
 __all__ = ["size", "parse_param", "HELP", "add_arguments", "run"]
 
@@ -45,7 +43,6 @@ _EFFECT_OPTIONS: tuple[tuple[str, str, str, str], ...] = (
 )
 _DESIGN_LABELS = {"alpha", "power", "alternative", "allocation_ratio", "attrition", "test", "effect", "simulation",
                   "pilot", "effect_rationale", "variability_source", "sequential", "assurance"}
-_SIMULATION_FIELDS = set(SimulationPlan.model_fields) - {"reps", "seed", "distribution"}
 _INT_RE = re.compile(r"^[-+]?\d+$")
 
 
@@ -106,6 +103,9 @@ def parse_param(text: str) -> tuple[str, Any]:
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    from ..power.assumptions import DEFAULT_REPS, DEFAULT_SEED
+    from ..power.catalog import family_names
+
     parser.add_argument("test", metavar="TEST", help=f"design family, one of: {', '.join(family_names())}")
     effect = parser.add_argument_group("effect (give the ones your design family uses)")
     for option, name, kind, text in _EFFECT_OPTIONS:
@@ -157,6 +157,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from ..power.assumptions import DEFAULT_REPS, MAX_REPS
+
     params: dict[str, Any] = {}
     for _option, name, _kind, _text in _EFFECT_OPTIONS:
         value = getattr(args, f"effect_{name}")
@@ -240,8 +242,12 @@ def _nest(params: dict[str, Any]) -> dict[str, Any]:
 
 def _build(test: str, params: dict[str, Any], simulate: int | None, seed: int | None,
            distribution: str | None) -> DesignBase:
+    from ..power import InvalidDesign, UnknownFamily, design_from_params
+    from ..power.assumptions import DEFAULT_SEED, SimulationPlan
+
+    simulation_fields = set(SimulationPlan.model_fields) - {"reps", "seed", "distribution"}
     params = _nest(params)
-    sim_extra = {key: params.pop(key) for key in list(params) if key in _SIMULATION_FIELDS}
+    sim_extra = {key: params.pop(key) for key in list(params) if key in simulation_fields}
     if simulate is not None:
         block = dict(params.pop("simulation", {}) or {})
         block.update(sim_extra)
@@ -267,6 +273,10 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
 
     A design whose size is an approximation (:func:`registry.power.verify.needs_verification`) gets
     the simulation-verified n, searched in ``workers`` processes."""
+    from ..checks import CAUTION
+    from ..power import EventsOnly, InfeasibleDesign, power_at
+    from ..power.simulate import InvalidSimulation
+
     design = _build(test, params, simulate, seed, distribution)
     try:
         result: SampleSize | PowerAtN
@@ -311,6 +321,9 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
 
 def _print_events(design: DesignBase, answer: EventsOnly, as_json: bool) -> None:
     """The answer of an event-driven design stated without event information: events only."""
+    from ..checks import CAUTION
+    from ..report import console
+
     family = design.family
     if as_json:
         print(json.dumps({"test": family.name, "events": answer.events, "n_per_group": None,
@@ -328,7 +341,9 @@ def _print_events(design: DesignBase, answer: EventsOnly, as_json: bool) -> None
 
 def _verified(design: DesignBase, workers: int, quiet: bool) -> SampleSize:
     """The simulation-verified size where the design needs one, else the exact or formula size."""
+    from ..power import solve_sample_size
     from ..power.verify import needs_verification
+    from ..report import console
 
     if not needs_verification(design):
         return solve_sample_size(design)
@@ -357,6 +372,9 @@ def _verified(design: DesignBase, workers: int, quiet: bool) -> SampleSize:
 
 
 def _simulate(design: DesignBase, n: int, quiet: bool) -> SimulatedPower:
+    from ..power.simulate import chunk_reps, simulated_power
+    from ..report import console
+
     plan = design.simulation
     assert plan is not None
     long_run = plan.reps / max(1, chunk_reps(design, n)) >= 4 or plan.reps >= 50_000
@@ -413,6 +431,10 @@ def _sizes(sizes: tuple[int, ...], unit: str) -> str:
 
 def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: SimulatedPower | None,
                  staged_rows: list[tuple[str, str]] = ()) -> None:
+    from ..checks import CAUTION
+    from ..power import SampleSize, enrolment
+    from ..report import console
+
     family = design.family
     out = console()
     rows: list[tuple[str, str]] = []

@@ -9,18 +9,14 @@ import unicodedata
 from dataclasses import dataclass, field
 from datetime import date, datetime, timezone
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from ..audit import Registration, find_spec, read_history, registrations
-from ..canonical import content_hash
-from ..checks import CAUTION
-from ..config import find_config, load_config, trust_paths
 from ..discovery import UsageError
-from ..git import GitProblem, Repository, find_repository
-from ..history import FUTURE_TOLERANCE, commit_day, show_change
 from ..problems import InvalidSpec
-from ..validation import validate_document
-from ..yamlio import load_bytes
+
+if TYPE_CHECKING:
+    from ..audit import Registration
+    from ..git import Repository
 
 __all__ = ["verify", "HELP", "add_arguments", "run"]
 
@@ -75,6 +71,10 @@ def _plain(text: object) -> str:
 
 def _repository(target: str, paths: list[str]) -> tuple[Repository, str, list[str], dict[str, str], Path | None,
                                                          bool]:
+    from ..audit import find_spec
+    from ..config import find_config, load_config
+    from ..git import find_repository
+
     try:
         spec_file, report = find_spec(target, paths)
     except UsageError:
@@ -100,6 +100,10 @@ def _repository(target: str, paths: list[str]) -> tuple[Repository, str, list[st
 
 def verify(target: str, paths: list[str], *, as_json: bool = False, now: datetime | None = None,
            trust: list[str] | None = None, allowed_signers: str | None = None) -> int:
+    from ..audit import registrations
+    from ..checks import CAUTION
+    from ..git import GitProblem
+
     repo, spec_id, extra, known, config_path, found = _repository(target, paths)
     if not found:
         try:
@@ -159,6 +163,8 @@ def verify(target: str, paths: list[str], *, as_json: bool = False, now: datetim
 
 def _anchors(trust: list[str], config_path: Path | None) -> tuple[list[Any], str, str | None]:
     """(certificates, where they came from, why there are none or they cannot be used)."""
+    from ..config import load_config, trust_paths
+
     from ..timestamp import InvalidTrust, load_trust
 
     if trust:
@@ -262,6 +268,13 @@ def _signature(repo: Repository, outcome: _Outcome, allowed_signers: Path | None
 
 def _verify(repo: Repository, spec_id: str, extra: list[str], known: dict[str, str], now: datetime,
             outcome: _Outcome) -> None:
+    from ..audit import registrations
+    from ..canonical import content_hash
+    from ..git import GitProblem
+    from ..history import FUTURE_TOLERANCE, commit_day
+    from ..validation import validate_document
+    from ..yamlio import load_bytes
+
     checks = outcome.checks
     regs = registrations(repo, spec_id)
     if not regs:
@@ -332,6 +345,10 @@ def _verify(repo: Repository, spec_id: str, extra: list[str], known: dict[str, s
 
 def _after_registration(repo: Repository, spec_id: str, registered: str, extra: list[str],
                         known_paths: dict[str, str], now: datetime, outcome: _Outcome) -> _Check:
+    from ..audit import read_history
+    from ..git import GitProblem
+    from ..history import show_change
+
     try:
         registry = read_history(repo, known_paths)
         registry.now = now

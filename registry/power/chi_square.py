@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import stats
+from .lazy import stats  # loaded on first use
 
 from .base import DesignBase, EffectBase, Family, locked
 from .noncentral_f import chi_square_power, required_noncentrality

@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 from pydantic import model_validator
-from scipy import stats
+from scipy import special
 
 from .base import DesignBase, EffectBase, Family, InfeasibleDesign, locked
 from .owen import tost_power
@@ -127,8 +127,8 @@ class EquivalenceT(Family):
         low, high, difference = self._scaled(design, effect_size)
         gap = min(high - difference, difference - low)
         centred = math.isclose(high - difference, difference - low)
-        z_beta = stats.norm.ppf((1 + design.power) / 2 if centred else design.power)
-        return (stats.norm.isf(design.alpha) + z_beta) ** 2 / gap**2 * (1 + 1 / design.allocation_ratio)
+        z_beta = special.ndtri((1 + design.power) / 2 if centred else design.power)
+        return (-special.ndtri(design.alpha) + z_beta) ** 2 / gap**2 * (1 + 1 / design.allocation_ratio)
 
     def natural_effect(self, design: DesignBase, effect_size: float) -> dict[str, float]:
         effect = design.effect
@@ -151,7 +151,7 @@ class EquivalenceT(Family):
         control = rng.standard_normal((reps, n))
         treated = rng.standard_normal((reps, n2)) + difference
         estimate, se, df = _pooled(treated, control)
-        crit = stats.t.isf(design.alpha, df)
+        crit = -special.stdtrit(df, design.alpha)
         return ((estimate - low) / se >= crit) & ((estimate - high) / se <= -crit)
 
 

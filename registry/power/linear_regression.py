@@ -7,7 +7,9 @@ from typing import Literal
 
 import numpy as np
 from pydantic import field_validator, model_validator
-from scipy import special, stats
+from scipy import special
+
+from .lazy import stats  # loaded on first use
 
 from .base import DesignBase, EffectBase, Family, locked
 from .noncentral_f import f_test_power, required_noncentrality

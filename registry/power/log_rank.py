@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 from pydantic import field_validator, model_validator
-from scipy import optimize, stats
+from .lazy import optimize, stats  # loaded on first use
 
 from .base import DesignBase, EffectBase, Family, locked
 from .fields import out_of_range

@@ -6,7 +6,8 @@ import math
 
 import numpy as np
 from pydantic import field_validator
-from scipy import special, stats
+from scipy import special
+from .lazy import stats  # loaded on first use
 
 from .base import DesignBase, Family, locked
 from .fields import out_of_range

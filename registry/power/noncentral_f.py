@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import special
+
+from .lazy import optimize  # loaded on first use
 
 __all__ = ["f_test_power", "chi_square_power", "required_noncentrality"]
 
@@ -20,8 +22,9 @@ def f_test_power(noncentrality: np.ndarray | float, df1: np.ndarray | float, df2
     >>> round(float(f_test_power(0.25**2 * 180, 3, 176, 0.05)), 4)
     0.804
     """
-    crit = stats.f.isf(alpha, df1, df2)
-    return stats.ncf.sf(crit, df1, df2, noncentrality)
+    # scipy.special's ufuncs, as scipy.stats.f.isf and scipy.stats.ncf.sf use them, without loading scipy.stats
+    crit = special.fdtri(df1, df2, 1 - alpha)
+    return 1 - special.ncfdtr(df1, df2, noncentrality, crit)
 
 
 def chi_square_power(noncentrality: np.ndarray | float, df: float, alpha: float) -> np.ndarray:
@@ -35,7 +38,8 @@ def chi_square_power(noncentrality: np.ndarray | float, df: float, alpha: float)
     >>> round(float(chi_square_power(0.3**2 * 108, 2, 0.05)), 4)
     0.8037
     """
-    return stats.ncx2.sf(stats.chi2.isf(alpha, df), df, np.asarray(noncentrality, dtype=float))
+    crit = special.chdtri(df, alpha)  # scipy.stats.chi2.isf
+    return 1 - special.chndtr(crit, df, np.asarray(noncentrality, dtype=float))
 
 
 def required_noncentrality(df: float, alpha: float, power: float) -> float:

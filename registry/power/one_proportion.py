@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 from pydantic import field_validator, model_validator
-from scipy import stats
+from .lazy import stats  # loaded on first use
 
 from .base import DesignBase, EffectBase, Family, fraction_validator, locked
 from .restrictions import require_no_allocation_ratio

@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 from pydantic import model_validator
-from scipy import stats
+from .lazy import stats  # loaded on first use
 
 from .base import DesignBase, EffectBase, Family, locked
 from .noncentral_f import f_test_power, required_noncentrality

@@ -7,7 +7,7 @@ from typing import Literal
 
 import numpy as np
 from pydantic import model_validator
-from scipy import integrate, optimize, stats
+from .lazy import integrate, optimize, stats  # loaded on first use
 
 from .base import EffectBase, locked
 from .mean_difference import _require_difference_or_d
@@ -27,12 +27,12 @@ ARE: dict[str, float] = {
     "uniform": 1.0,
 }
 
-# Each shape with mean 0 and SD 1: (scipy distribution, scale)
+# Each shape with mean 0 and SD 1: (scipy.stats distribution, scale)
 _SCALED = {
-    "normal": (stats.norm, 1.0),
-    "logistic": (stats.logistic, math.sqrt(3) / math.pi),
-    "laplace": (stats.laplace, 1 / math.sqrt(2)),
-    "uniform": (stats.uniform, 2 * math.sqrt(3)),
+    "normal": ("norm", 1.0),
+    "logistic": ("logistic", math.sqrt(3) / math.pi),
+    "laplace": ("laplace", 1 / math.sqrt(2)),
+    "uniform": ("uniform", 2 * math.sqrt(3)),
 }
 
 
@@ -111,7 +111,8 @@ def standardized_sample(shape: str, rng: np.random.Generator, size: tuple[int, .
 
 def _superiority(shape: str, shift: float) -> float:
     """P(X + shift > X') for independent X, X' of ``shape`` (mean 0, SD 1)."""
-    dist, scale = _SCALED[shape]
+    name, scale = _SCALED[shape]
+    dist = getattr(stats, name)
     loc = -scale / 2 if shape == "uniform" else 0.0
     frozen = dist(loc=loc, scale=scale)
     low, high = frozen.ppf(1e-12), frozen.ppf(1 - 1e-12)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import stats
+from .lazy import stats  # loaded on first use
 
 from .base import DesignBase, Family, locked
 from .rank_efficiency import RankShift, standardized_sample, t_equivalent_n

@@ -6,7 +6,7 @@ import math
 from typing import Any, Callable
 
 import numpy as np
-from scipy import optimize
+from .lazy import optimize  # loaded on first use
 
 from .base import MAX_N, DesignBase, EventsOnly, Family, InfeasibleDesign
 from .results import PowerAtN, SampleSize

@@ -7,7 +7,7 @@ from typing import Literal
 
 import numpy as np
 from pydantic import field_validator, model_validator
-from scipy import special, stats
+from scipy import special
 
 from .base import DesignBase, EffectBase, Family, fraction_validator, locked
 from .binary_tables import exact_power
@@ -160,7 +160,7 @@ class TwoProportions(Family):
         n1 = np.atleast_1d(np.asarray(n, dtype=float))
         n2 = np.ceil(design.allocation_ratio * n1 - 1e-9)
         tails = 2 if design.alternative == "two-sided" else 1
-        z = stats.norm.isf(design.alpha / tails)
+        z = -special.ndtri(design.alpha / tails)
         if effect.method == "arcsine":
             h = cohens_h(p1, p2)
             shift = h * np.sqrt(n1 * n2 / (n1 + n2))
@@ -183,7 +183,7 @@ class TwoProportions(Family):
         effect = design.effect
         r = design.allocation_ratio
         tails = 2 if design.alternative == "two-sided" else 1
-        z_alpha, z_beta = stats.norm.isf(design.alpha / tails), stats.norm.ppf(design.power)
+        z_alpha, z_beta = -special.ndtri(design.alpha / tails), special.ndtri(design.power)
         p1, p2 = effect.p1, self._p2(design, effect_size)
         if effect.method == "arcsine":
             return (z_alpha + z_beta) ** 2 * (1 + 1 / r) / cohens_h(p1, p2) ** 2
@@ -202,7 +202,7 @@ class TwoProportions(Family):
         x2 = rng.binomial(n2, effect.p2, size=reps)
         q1, q2 = x1 / n1, x2 / n2
         tails = 2 if design.alternative == "two-sided" else 1
-        z_crit = stats.norm.isf(design.alpha / tails)
+        z_crit = -special.ndtri(design.alpha / tails)
         if effect.method == "arcsine":
             z = (2 * np.arcsin(np.sqrt(q2)) - 2 * np.arcsin(np.sqrt(q1))) / math.sqrt(1 / n1 + 1 / n2)
         else:

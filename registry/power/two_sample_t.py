@@ -4,7 +4,7 @@ from __future__ import annotations
 
 
 import numpy as np
-from scipy import stats
+from .lazy import stats  # loaded on first use
 
 from .base import DesignBase, Family
 from .mean_difference import MeanDifference

@@ -6,7 +6,8 @@ import math
 
 import numpy as np
 from pydantic import model_validator
-from scipy import special, stats
+from scipy import special
+from .lazy import stats  # loaded on first use
 
 from .base import DesignBase, EffectBase, Family, locked
 
@@ -63,13 +64,13 @@ def welch_power(difference: float, sd1: float, sd2: float, n1: np.ndarray, n2: n
     n1 = np.where(defined, n1, 2.0)[:, None, None]
     n2 = np.where(defined, n2, 2.0)[:, None, None]
     nu1, nu2 = n1 - 1, n2 - 1
-    a = sd1**2 * stats.chi2.ppf(_U[None, :, None], nu1) / nu1 / n1  # s1^2 / n1
-    b = sd2**2 * stats.chi2.ppf(_U[None, None, :], nu2) / nu2 / n2  # s2^2 / n2
+    a = sd1**2 * 2 * special.gammaincinv(nu1 / 2, _U[None, :, None]) / nu1 / n1  # s1^2 / n1
+    b = sd2**2 * 2 * special.gammaincinv(nu2 / 2, _U[None, None, :]) / nu2 / n2  # s2^2 / n2
     se = np.sqrt(a + b)
     df = (a + b) ** 2 / (a**2 / nu1 + b**2 / nu2)
     sd_of_mean_difference = np.sqrt(sd1**2 / n1 + sd2**2 / n2)
     tails = 2 if alternative == "two-sided" else 1
-    bound = stats.t.isf(alpha / tails, df) * se
+    bound = -special.stdtrit(df, alpha / tails) * se
     upper = special.ndtr((difference - bound) / sd_of_mean_difference)
     lower = special.ndtr((-difference - bound) / sd_of_mean_difference)
     if alternative == "two-sided":
@@ -137,7 +138,7 @@ class WelchT(Family):
     def approximate_n(self, design: DesignBase, effect_size: float) -> float:
         effect = design.effect
         tails = 2 if design.alternative == "two-sided" else 1
-        z = stats.norm.isf(design.alpha / tails) + stats.norm.ppf(design.power)
+        z = -special.ndtri(design.alpha / tails) + special.ndtri(design.power)
         difference = effect_size * effect.root_mean_square_sd()
         return z**2 * (effect.sd1**2 + effect.sd2**2 / design.allocation_ratio) / difference**2
 
