@@ -248,8 +248,37 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
         for blob, why in registry.unattributed().items():
             status.problems.append(f"{root}: a version of a spec file (blob {blob[:10]}) cannot be read, and no "
                                    f"spec it belongs to could be named; its history may be incomplete ({why})")
-        reports += _deleted_reports(registry, seen, scopes, all_tags)
+        deleted = _deleted_reports(registry, seen, scopes, all_tags)
+        reports += deleted + _missing_registrations(registry, seen, scopes, all_tags, deleted)
     return status
+
+
+def _missing_registrations(registry: RegistryHistory, seen: set[str], scopes: Sequence[Path],
+                           tags: Sequence[TagInfo], deleted: list[SpecReport]) -> list[SpecReport]:
+    """An error for every registered id (a ``prespec/<id>/vN`` tag) with no spec in the working tree:
+    on its deleted-spec report when there is one, else on a report of its own."""
+    by_id: dict[str, list[Registration]] = {}
+    for tag in tags:
+        parts = tag.name.split("/")
+        if len(parts) == 3 and tag_version(tag.name, parts[1]) is not None and parts[1] not in seen:
+            by_id.setdefault(parts[1], []).extend(registrations(registry.repo, parts[1], [tag]))
+    out = []
+    reports = {report.id: report for report in deleted}
+    for spec_id, found in sorted(by_id.items()):
+        last = max(found, key=lambda r: r.version)
+        path = last.fields.get("path")
+        if path and not _in_scope(registry.repo.root / path, scopes):
+            continue
+        report = reports.get(spec_id)
+        if report is None:
+            report = SpecReport(path=display_name(registry.repo.root / path) if path else last.tag.name, id=spec_id)
+            out.append(report)
+        report.findings.append(Finding(
+            "registered-missing", "error", "id", None,
+            f"spec {spec_id!r} is registered (tag {last.tag.name}" + (f", file {path}" if path else "") +
+            ") but no spec with this id is in the working tree: a registered experiment's record must stay; "
+            "restore the file, and withdraw the experiment with status: withdrawn rather than deleting it"))
+    return out
 
 
 def _unreachable_tags(repo: Repository, spec_id: str, tags: Sequence[TagInfo] | None) -> list[Finding]:
@@ -268,8 +297,8 @@ def _deleted_reports(registry: RegistryHistory, seen: set[str], scopes: Sequence
                      tags: Sequence[TagInfo]) -> list[SpecReport]:
     out = []
     for spec_id, events in registry.events.items():
-        if spec_id in seen:
-            continue
+        if spec_id in seen or (events and events[-1].id_to and events[-1].id_to[0] in seen):
+            continue  # a changed id: the new id's report carries it
         history = spec_history(registry, spec_id, tags=tags)
         where = registry.head_ids.get(spec_id)
         last_path = where[0] if where else history.last_path
