@@ -9,12 +9,18 @@ the commits reachable from HEAD; blob contents come through gitpython's persiste
 from __future__ import annotations
 
 import os
+import re
 from dataclasses import dataclass
-from datetime import datetime, timezone
+from datetime import datetime, timedelta, timezone, tzinfo
 from pathlib import Path
 
-import git
-from git.exc import GitCommandError, InvalidGitRepositoryError, NoSuchPathError
+# without git on PATH gitpython would refuse to import; prespec then says so only where git is needed
+os.environ.setdefault("GIT_PYTHON_REFRESH", "quiet")
+
+import git  # noqa: E402
+from git.exc import GitCommandError, InvalidGitRepositoryError, NoSuchPathError  # noqa: E402
+
+from .discovery import UsageError  # noqa: E402
 
 __all__ = [
     "Commit",
@@ -23,9 +29,11 @@ __all__ = [
     "TagInfo",
     "Repository",
     "GitProblem",
+    "GitMissing",
     "find_repository",
     "init_repository",
     "NULL_SHA",
+    "odd_offset",
 ]
 
 NULL_SHA = "0" * 40
@@ -36,6 +44,20 @@ _FORMAT = "%x1e%H%x00%P%x00%an%x00%ae%x00%aI%x00%cn%x00%ce%x00%cI%x00"
 
 class GitProblem(RuntimeError):
     """git could not do what prespec asked; the message says what and why."""
+
+
+class GitMissing(UsageError):
+    """No ``git`` program to run: the commands that read history stop with one line (exit 2)."""
+
+
+def _require_git() -> None:
+    import shutil
+
+    program = git.Git.GIT_PYTHON_GIT_EXECUTABLE or "git"
+    if shutil.which(program) is None:
+        raise GitMissing(f"git is not installed or not on PATH ({program!r} not found): prespec needs it to read "
+                         "or write a registry's git history; install git ('prespec check --no-history' checks the "
+                         "specs alone)")
 
 
 @dataclass(frozen=True)
@@ -104,7 +126,52 @@ class TagInfo:
 
 
 def _date(text: str) -> datetime:
-    return datetime.fromisoformat(text.strip().replace("Z", "+00:00"))
+    """A date git printed in ISO form; an offset Python cannot hold (git accepts up to +-99:59, Python
+    less than 24 hours) is read as the same moment in UTC and marked by :func:`odd_offset`.
+
+    >>> _date("2020-01-14T13:59:00+99:59").isoformat()
+    '2020-01-10T10:00:00+00:00'
+    """
+    text = text.strip().replace("Z", "+00:00")
+    try:
+        return datetime.fromisoformat(text)
+    except ValueError:
+        pass
+    match = _ISO_OFFSET.fullmatch(text)
+    try:
+        if match is None:
+            raise ValueError(text)
+        local = datetime.fromisoformat(match.group(1))
+    except ValueError:
+        raise GitProblem(f"git recorded a date prespec cannot read: {text!r}") from None
+    sign = -1 if match.group(2) == "-" else 1
+    offset = timedelta(hours=int(match.group(3)), minutes=int(match.group(4)))
+    return (local - sign * offset).replace(tzinfo=_ODD_UTC)
+
+
+class _OddUTC(tzinfo):
+    """UTC, for a moment git recorded with an offset of 24 hours or more (an impossible time zone)."""
+
+    def utcoffset(self, dt: datetime | None) -> timedelta:
+        return timedelta(0)
+
+    def dst(self, dt: datetime | None) -> timedelta:
+        return timedelta(0)
+
+    def tzname(self, dt: datetime | None) -> str:
+        return "UTC"
+
+    def __repr__(self) -> str:
+        return "odd offset, read as UTC"
+
+
+_ODD_UTC = _OddUTC()
+_ISO_OFFSET = re.compile(r"(\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d)([+-])(\d\d):?(\d\d)")
+
+
+def odd_offset(moment: datetime) -> bool:
+    """Whether git recorded ``moment`` with a time-zone offset no real zone has (24 hours or more)."""
+    return moment.tzinfo is _ODD_UTC
 
 
 def _parse_log(raw: bytes, suffixes: tuple[str, ...]) -> list[LogEntry]:
@@ -180,8 +247,13 @@ class Repository:
         """The commit HEAD points at, or ``None`` in a repository without commits."""
         try:
             return self._repo.head.commit.hexsha
-        except ValueError:
-            return None
+        except ValueError as error:
+            try:  # an unborn branch names no commit; a missing or corrupt one is a fault
+                sha = self._repo.git.execute(["git", "rev-parse", "-q", "--verify", "HEAD"]).strip()
+            except GitCommandError:
+                return None
+            raise GitProblem(f"HEAD names commit {sha[:10]}, which git cannot read "
+                             f"({_gist(str(error))})") from None
 
     def detached(self) -> bool:
         """Whether HEAD names a commit directly rather than a branch (a detached HEAD)."""
@@ -422,6 +494,7 @@ def find_repository(path: Path) -> Repository | None:
         return None
     if repo.bare or repo.working_tree_dir is None:
         return None
+    _require_git()
     return Repository(repo)
 
 
@@ -436,6 +509,7 @@ def _configured(repo: git.Repo) -> Repository:
 
 def init_repository(path: Path) -> Repository:
     """``git init`` a new repository whose local config does not depend on the user's global one."""
+    _require_git()
     Path(path).mkdir(parents=True, exist_ok=True)
     repo = git.Repo.init(path, initial_branch="main") if _supports_initial_branch() else git.Repo.init(path)
     return _configured(repo)

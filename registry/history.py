@@ -13,6 +13,7 @@ order, layout and number spelling are never changes), and decides:
 - ``incomplete-history``: a shallow clone, or a first version already after the start;
 - ``date-order``: a commit dated before its parent;
 - ``future-date``: a commit dated later than now (its date proves nothing);
+- ``bad-timezone``: a commit whose recorded offset no time zone has (read as UTC);
 - ``history-unreadable``: a version git cannot read (a missing or corrupt object);
 - ``untracked``: no version of the spec in the history at all;
 - ``deleted``: the history ends with the spec's removal;
@@ -46,7 +47,7 @@ from pydantic import BaseModel
 
 from .canonical import locked_view
 from .checks import Finding
-from .git import Commit, LogEntry
+from .git import Commit, LogEntry, odd_offset
 from .model import Spec, locked_paths
 from .problems import InvalidSpec
 from .validation import validate_document
@@ -464,7 +465,8 @@ class SpecHistory:
 _VERDICTS: tuple[tuple[str, str], ...] = (
     ("drift", "drift"), ("id-changed", "drift"), ("history-unreadable", "unreadable"), ("incomplete-history", "incomplete"),
     ("rewritten-history", "rewritten"), ("deleted", "deleted"), ("untracked", "untracked"),
-    ("future-date", "unreliable-dates"), ("date-order", "unreliable-dates"), ("amended", "amended"))
+    ("future-date", "unreliable-dates"), ("date-order", "unreliable-dates"),
+    ("bad-timezone", "unreliable-dates"), ("amended", "amended"))
 
 
 def verdict_of(kinds: Iterable[str]) -> str:
@@ -625,6 +627,13 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
                 "history, so drift cannot be ruled out"))
         if commit_dates is not None:
             history.findings += _date_order(commit, commit_dates)
+        if odd_offset(commit.committer_date) or odd_offset(commit.author_date):
+            history.findings.append(Finding(
+                "bad-timezone", "warning", "", None,
+                f"commit {commit.short} records a time-zone offset of 24 hours or more, which no time zone has "
+                f"(git accepts up to 99:59); its dates were written by hand or by a broken tool and are read here "
+                f"as UTC ({_short_date(commit.committer_date)}), so they are no reliable evidence of when the change "
+                "was made"))
         if now is not None and commit.committer_date > now + FUTURE_TOLERANCE:
             history.findings.append(Finding(
                 "future-date", "warning", "", None,

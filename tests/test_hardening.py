@@ -8,10 +8,13 @@ rules of docs/reviewer-guide.md.
 
 from __future__ import annotations
 
+import os
+
 import pytest
 
 from registry.registration import format_message
 
+from .conftest import ROOT
 from .history_helpers import POSTDOC, Lab, spec_text
 
 BEFORE = "2020-01-10T10:00:00+01:00"
@@ -136,3 +139,90 @@ def test_a_registered_id_whose_history_was_rewritten_away_is_an_error(lab, run):
     assert result.status == 1
     spec = _spec(result)
     assert "registered-missing" in _kinds(spec)
+
+
+# ------------------------------------------------------------------ any commit git accepts is readable
+
+
+def _git(lab, *args, stdin=None):
+    import subprocess
+
+    env = {**os.environ, "GIT_AUTHOR_NAME": "Lab lead", "GIT_AUTHOR_EMAIL": "lead@lab.example",
+           "GIT_COMMITTER_NAME": "Lab lead", "GIT_COMMITTER_EMAIL": "lead@lab.example"}
+    done = subprocess.run(["git", *args], cwd=lab.root, input=stdin, capture_output=True, env=env, check=True)
+    return done.stdout.decode().strip()
+
+
+@pytest.mark.parametrize("offset", ["+2400", "+9959", "-2500"])
+def test_a_time_zone_offset_git_accepts_but_no_zone_has_is_a_finding(lab, run, offset):
+    # git stores "<seconds> <offset>" and accepts any four digits (git's fsck checks only the form)
+    lab.write(SPEC, spec_text())
+    head = lab.commit("plan", BEFORE)
+    lab.write(SPEC, spec_text(per_group="30"))
+    _git(lab, "add", "-A")
+    tree = _git(lab, "write-tree")
+    raw = (f"tree {tree}\nparent {head}\nauthor Lab lead <lead@lab.example> 1578650400 {offset}\n"
+           f"committer Lab lead <lead@lab.example> 1578650400 {offset}\n\nodd clock\n")
+    odd = _git(lab, "hash-object", "-t", "commit", "-w", "--stdin", stdin=raw.encode())
+    _git(lab, "update-ref", "HEAD", odd)
+    result = run("check", lab.registry, "--json")
+    assert result.status in (0, 1), result.err
+    spec = _spec(result)
+    bad = [f for f in spec["findings"] if f["kind"] == "bad-timezone"]
+    assert len(bad) == 1 and odd[:10] in bad[0]["message"], spec["findings"]
+    assert spec["history"]["verdict"] == "unreliable-dates"
+    # 1578650400 is 2020-01-10 10:00 UTC (the Unix epoch, common practice)
+    history = run("history", "mouse-diet", lab.registry, "--json")
+    assert history.status in (0, 1), history.err
+    assert history.json()["revisions"][-1]["committer_date"] == "2020-01-10T10:00:00+00:00"
+
+
+def test_a_missing_head_commit_is_unreadable_history_not_untracked(lab, run):
+    lab.write(SPEC, spec_text())
+    head = lab.commit("plan", BEFORE)
+    (lab.root / ".git" / "objects" / head[:2] / head[2:]).unlink()
+    result = run("check", lab.registry, "--json")
+    assert result.status == 1, result.err
+    spec = _spec(result)
+    assert "history-unreadable" in _kinds(spec) and "untracked" not in _kinds(spec), spec["findings"]
+    assert head[:10] in next(f["message"] for f in spec["findings"] if f["kind"] == "history-unreadable")
+
+
+def test_a_head_naming_a_commit_that_does_not_exist_is_unreadable_history(lab, run):
+    lab.write(SPEC, spec_text())
+    lab.commit("plan", BEFORE)
+    (lab.root / ".git" / "refs" / "heads" / "main").write_text("de" * 20 + "\n")
+    (lab.root / ".git" / "HEAD").write_text("ref: refs/heads/main\n")
+    spec = _spec(run("check", lab.registry, "--json"))
+    assert "history-unreadable" in _kinds(spec) and "untracked" not in _kinds(spec), spec["findings"]
+
+
+def test_without_git_on_path_history_commands_say_so_in_one_line_and_the_rest_work(lab, run, tmp_path,
+                                                                                  monkeypatch):
+    lab.write(SPEC, spec_text())
+    lab.commit("plan", BEFORE)
+    pilot = tmp_path / "controls.csv"
+    pilot.write_text("butyrate\n4.1\n5.3\n6.0\n4.8\n", encoding="utf-8")
+    empty = tmp_path / "empty-path"
+    empty.mkdir()
+    monkeypatch.setenv("PATH", str(empty))
+    for argv in (["check", lab.registry], ["history", "mouse-diet", lab.registry]):
+        result = run(*argv)
+        assert result.status == 2, (argv, result.err)
+        lines = result.err.strip().splitlines()
+        assert len(lines) == 1 and "git is not installed or not on PATH" in lines[0], result.err
+    assert run("check", "--no-history", lab.registry).status == 0
+    assert run("size", "two-sample-t", "--d", "0.5").status == 0
+    assert run("pilot", pilot, "--column", "butyrate").status == 0
+    assert run("schema", "--out", tmp_path / "s.json").status == 0
+    assert run("new", "gut-transit", "--dir", tmp_path, "--test", "two-sample-t").status == 0
+
+
+def test_prespec_starts_without_git_on_path(tmp_path):
+    import subprocess
+    import sys
+
+    env = {"PATH": str(tmp_path), "PYTHONPATH": str(ROOT), "NO_COLOR": "1"}
+    done = subprocess.run([sys.executable, "-m", "registry", "size", "two-sample-t", "--d", "0.5"],
+                          capture_output=True, env=env, cwd=tmp_path)
+    assert done.returncode == 0, done.stderr.decode()
