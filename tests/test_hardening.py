@@ -226,3 +226,167 @@ def test_prespec_starts_without_git_on_path(tmp_path):
     done = subprocess.run([sys.executable, "-m", "registry", "size", "two-sample-t", "--d", "0.5"],
                           capture_output=True, env=env, cwd=tmp_path)
     assert done.returncode == 0, done.stderr.decode()
+
+
+# ------------------------------------------------------------------ confined pilot files
+
+PILOT_SPEC = """id: pilot-demo
+title: Pilot demo
+status: draft
+data_collection:
+  start: 2027-03-01
+design:
+  test: two-sample-t
+  effect:
+    difference: 2.0
+    sd: 2.5
+  pilot:
+    file: {file}
+    column: weight
+    sha256: "{sha}"
+sample_size:
+  per_group: 40
+"""
+PILOT_VALUES = "weight\n" + "".join(f"{v}\n" for v in (10.1, 11.9, 9.4, 12.2, 10.8, 11.1, 13.0, 9.9))
+
+
+def _pilot_registry(tmp_path, file, spec_name="pilot-demo.yaml", spec_id="pilot-demo"):
+    folder = tmp_path / "reg"
+    folder.mkdir(exist_ok=True)
+    (folder / spec_name).write_text(PILOT_SPEC.format(file=file, sha="0" * 64).replace("pilot-demo", spec_id),
+                                    encoding="utf-8")
+    return folder
+
+
+def _pilot_findings(result):
+    return [f for s in result.json()["specs"] for f in s["findings"] if f["kind"].startswith("pilot")]
+
+
+SECRET = "API_TOKEN=s3cr3t-do-not-print"
+
+
+@pytest.mark.parametrize("how", ["dotdot", "symlink", "linked-folder"])
+def test_a_pilot_file_outside_the_registry_is_refused_without_echoing_it(tmp_path, run, how):
+    outside = tmp_path / "secrets.csv"
+    outside.write_text(f"{SECRET},x\n1,2\n3,4\n", encoding="utf-8")
+    if how == "symlink":
+        folder = _pilot_registry(tmp_path, "data.csv")
+        (folder / "data.csv").symlink_to(outside)
+    elif how == "linked-folder":
+        folder = _pilot_registry(tmp_path, "data/secrets.csv")
+        (folder / "data").symlink_to(tmp_path)
+    else:
+        folder = _pilot_registry(tmp_path, "../secrets.csv")
+    result = run("check", "--no-history", folder, "--json")
+    assert result.status == 1
+    found = _pilot_findings(result)
+    assert [f["kind"] for f in found] == ["pilot-invalid"], found
+    assert "outside the registry" in found[0]["message"]
+    assert "s3cr3t" not in result.out + result.err
+
+
+def test_a_pilot_file_elsewhere_in_the_same_repository_is_read(tmp_path, run):
+    lab = Lab(tmp_path / "lab")
+    (lab.root / "data").mkdir()
+    (lab.root / "data" / "controls.csv").write_text(PILOT_VALUES, encoding="utf-8")
+    (lab.registry / "pilot-demo.yaml").write_text(PILOT_SPEC.format(file="../data/controls.csv", sha="0" * 64),
+                                                  encoding="utf-8")
+    result = run("check", "--no-history", lab.registry, "--json")
+    kinds = {f["kind"] for f in _pilot_findings(result)}
+    assert "pilot-changed" in kinds and "pilot-invalid" not in kinds, _pilot_findings(result)
+
+
+def test_a_header_line_is_not_echoed_beyond_plain_column_names(tmp_path, run):
+    folder = _pilot_registry(tmp_path, "data.csv")
+    (folder / "data.csv").write_text(f"group,{SECRET}\na,1\nb,2\n", encoding="utf-8")
+    result = run("check", "--no-history", folder, "--json")
+    message = _pilot_findings(result)[0]["message"]
+    assert "no column 'weight'" in message and "'group'" in message and "1 name not shown" in message, message
+    assert "s3cr3t" not in result.out + result.err
+    cli = run("pilot", folder / "data.csv", "--column", "weight")
+    assert cli.status == 2 and "s3cr3t" not in cli.out + cli.err
+
+
+def test_a_non_numeric_cell_is_not_echoed(tmp_path, run):
+    folder = _pilot_registry(tmp_path, "data.csv")
+    (folder / "data.csv").write_text(f"weight\n1\n{SECRET}\n2\n", encoding="utf-8")
+    message = _pilot_findings(run("check", "--no-history", folder, "--json"))[0]["message"]
+    assert "data.csv:3: column 'weight'" in message and "s3cr3t" not in message, message
+
+
+def test_a_fifo_as_pilot_file_does_not_hang_check_or_pilot(tmp_path):
+    import subprocess
+    import sys
+
+    folder = _pilot_registry(tmp_path, "data.csv")
+    os.mkfifo(folder / "data.csv")
+    env = {**os.environ, "PYTHONPATH": str(ROOT), "NO_COLOR": "1"}
+    for argv in (["check", "--no-history", str(folder), "--json"], ["pilot", str(folder / "data.csv"), "--column", "x"]):
+        try:
+            done = subprocess.run([sys.executable, "-m", "registry", *argv], capture_output=True, env=env, timeout=60)
+        except subprocess.TimeoutExpired:
+            pytest.fail(f"prespec {argv[0]} blocked on a FIFO named as pilot file")
+        assert b"not a regular file" in done.stdout + done.stderr, done
+
+
+def test_pilot_values_that_overflow_are_a_finding_not_a_crash(tmp_path, run):
+    folder = _pilot_registry(tmp_path, "data.csv")
+    (folder / "data.csv").write_text("weight\n1.7e308\n1.7e308\n-1.7e308\n", encoding="utf-8")
+    result = run("check", "--no-history", folder, "--json")
+    assert result.status == 1, result.err
+    found = _pilot_findings(result)
+    assert [f["kind"] for f in found] == ["pilot-invalid"] and "overflows" in found[0]["message"], found
+    cli = run("pilot", folder / "data.csv", "--column", "weight")
+    assert cli.status == 2 and "overflows" in cli.err
+
+
+def test_the_csv_dialect_is_found_without_a_general_sniffer(tmp_path, monkeypatch):
+    # a 21 KB file on which a general-purpose delimiter sniffer backtracks for seconds
+    import csv
+
+    from registry.pilot import read_pilot
+
+    class _NoSniffer:
+        def __init__(self):
+            raise AssertionError("the delimiter is detected by a linear scan, not a backtracking sniffer")
+
+    monkeypatch.setattr(csv, "Sniffer", _NoSniffer)
+    path = tmp_path / "p.csv"
+    path.write_text("weight,note\n1,x\n3,y\n2," + ',"a' * 7000 + "\n", encoding="utf-8")
+    summary = read_pilot(path, "weight")
+    assert summary.n == 3 and summary.mean == pytest.approx(2.0)
+    semi = tmp_path / "semi.csv"
+    semi.write_text('id;weight\n1;"4.0"\n2;5.0\n', encoding="utf-8")
+    assert read_pilot(semi, "weight").n == 2
+    tabs = tmp_path / "tabs.csv"
+    tabs.write_text("id\tweight\n1\t4.0\n2\t5.0\n3\t\n", encoding="utf-8")
+    assert read_pilot(tabs, "weight").missing == 1
+
+
+def test_each_pilot_file_is_read_once_per_run(tmp_path, run, monkeypatch):
+    import builtins
+
+    import registry.pilot as pilot_module
+
+    folder = _pilot_registry(tmp_path, "data.csv")
+    for i in range(1, 6):
+        _pilot_registry(tmp_path, "data.csv", f"pilot-demo-{i}.yaml", f"pilot-demo-{i}")
+    (folder / "data.csv").write_text(PILOT_VALUES + "10.5\n", encoding="utf-8")  # new bytes: not read before
+    reads = []
+    real_open, real_fdopen = builtins.open, os.fdopen
+
+    def counting_open(file, *args, **kwargs):
+        if str(file).endswith("data.csv"):
+            reads.append(file)
+        return real_open(file, *args, **kwargs)
+
+    def counting_fdopen(fd, *args, **kwargs):
+        if os.readlink(f"/proc/self/fd/{fd}").endswith("data.csv"):
+            reads.append(fd)
+        return real_fdopen(fd, *args, **kwargs)
+
+    monkeypatch.setattr(builtins, "open", counting_open)
+    monkeypatch.setattr(pilot_module.os, "fdopen", counting_fdopen)
+    result = run("check", "--no-history", folder, "--json")
+    assert len(result.json()["specs"]) == 6
+    assert len(reads) == 1, reads
