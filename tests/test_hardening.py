@@ -390,3 +390,68 @@ def test_each_pilot_file_is_read_once_per_run(tmp_path, run, monkeypatch):
     result = run("check", "--no-history", folder, "--json")
     assert len(result.json()["specs"]) == 6
     assert len(reads) == 1, reads
+
+
+# ------------------------------------------------------------------ terminal safety
+
+MARKUP_NAME = "Eve [/] [link=https://evil.example]click[/link] [bold]x"
+CONTROL_NAME = "Eve \x1b]8;;https://evil.example\x07here\x1b]8;;\x07 \x1b[2J"
+
+
+def _raw_controls(text):
+    # ESC, BEL, DEL and the C1 range (CSI is U+009B); newline and tab are layout, not controls
+    return [ch for ch in text if (ord(ch) < 32 and ch not in "\n\t") or 0x7F <= ord(ch) <= 0x9F]
+
+
+def test_history_prints_markup_in_an_author_name_as_text(lab, run):
+    lab.write(SPEC, spec_text())
+    lab.commit("plan", BEFORE, author=(MARKUP_NAME, "eve@lab.example"))
+    lab.write(SPEC, spec_text(per_group="20"))
+    lab.commit("fewer", AFTER, author=(MARKUP_NAME, "eve@lab.example"))
+    result = run("history", "mouse-diet", lab.registry)
+    assert result.status == 1, result.err  # drift, not a crash (exit 3)
+    assert "[link=https://evil.example]click[/link]" in result.out.replace("\n", "") or \
+        "[link=https://evil.example]" in result.out
+    assert "[/]" in result.out
+    check = run("check", lab.registry)
+    assert "[link=https://evil.example]click[/link]" in check.out
+
+
+def test_control_characters_in_author_names_and_spec_values_are_escaped(lab, run):
+    lab.write(SPEC, spec_text())
+    lab.commit("plan", BEFORE)
+    lab.write(SPEC, spec_text(per_group="20", analysis="Welch t-test \u009b31m on week-8 butyrate."))
+    lab.commit("fewer", AFTER, author=(CONTROL_NAME, "eve@lab.example"))
+    for argv in (["history", "mouse-diet", lab.registry], ["check", lab.registry]):
+        result = run(*argv)
+        assert result.status == 1, (argv, result.err)
+        assert not _raw_controls(result.out + result.err), (argv, result.out)
+        assert "\\x1b]8;;https://evil.example\\x07here" in result.out, result.out
+
+
+def test_a_tagger_name_with_markup_is_not_a_live_link_in_verify(lab, run):
+    lab.write(SPEC, spec_text(start="2099-06-01"))
+    head = lab.commit("plan", BEFORE)
+    message = format_message({"id": "mouse-diet", "path": f"registry/{SPEC}", "commit": head, "start": "2099-06-01",
+                              "content-sha256": "0" * 64, "tool": "prespec 0.1.0"})
+    lab.repo.tag_with_dates("prespec/mouse-diet/v1", head, message, tagger=(MARKUP_NAME, "eve@lab.example"),
+                            date="2020-01-11T09:00:00+01:00")
+    result = run("verify", "mouse-diet", lab.registry)
+    assert result.status == 1  # the recorded hash is wrong on purpose
+    assert "[link=https://evil.example]" in result.out, result.out
+
+
+def test_a_path_with_brackets_is_printed_whole(tmp_path, run):
+    folder = tmp_path / "[old] specs"
+    folder.mkdir()
+    result = run("check", folder)
+    assert "[old] specs" in result.out, result.out
+
+
+def test_an_id_on_the_command_line_is_printed_without_controls(lab, run):
+    lab.write(SPEC, spec_text())
+    lab.commit("plan", BEFORE)
+    for command in ("history", "verify", "hash"):
+        result = run(command, "no-such\x1b[2J\u009b", lab.registry)
+        assert result.status in (1, 2)
+        assert not _raw_controls(result.out + result.err), (command, result.err)

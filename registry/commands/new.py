@@ -11,6 +11,7 @@ from pathlib import Path
 from ..discovery import UsageError
 from ..fsutil import WriteRefused, confined, write_atomic
 from ..model import ID_PATTERN, SCHEMA_ID
+from ..problems import plain_text
 from ..power import design_from_params, family_names, get_family, solve_sample_size
 from ..power.catalog import UnknownFamily
 
@@ -113,7 +114,8 @@ def new(spec_id: str, *, folder: str = ".", test: str = "two-sample-t", title: s
                      overwrite=False)
     except WriteRefused as error:
         raise UsageError(str(error)) from None
-    print(f"wrote {target}: fill in the assumptions, then run 'prespec check {target}'")
+    print(plain_text(f"wrote {target}: fill in the assumptions, then run 'prespec check {target}'"))
     if schema_ref == SCHEMA_ID:
-        print(f"hint: run 'prespec schema --out {target_folder / SCHEMA_ID}' so editors can validate the spec")
+        print(plain_text(f"hint: run 'prespec schema --out {target_folder / SCHEMA_ID}' so editors can validate "
+                         "the spec"))
     return 0

@@ -9,7 +9,7 @@ import math
 from ..checks import CAUTION
 from ..discovery import UsageError
 from ..pilot import InvalidPilot, PilotSummary, read_pilot
-from ..report import console
+from ..report import console, plain
 
 __all__ = ["pilot", "HELP", "add_arguments", "run"]
 
@@ -65,7 +65,7 @@ def _print_human(s: PilotSummary) -> None:
         ("upper limit", f"{s.sd_upper:.6g} (one-sided {level} confidence limit of the SD; Browne 1995)"),
         ("SHA-256", str(s.sha256)),
     ]
-    out.print(f"Pilot data: {s.file}, column {s.column!r}")
+    out.print(plain(f"Pilot data: {s.file}, column {s.column!r}"))
     for label, text in rows:
         out.print(f"  {label:<11}  {text}", soft_wrap=True)
     out.print()

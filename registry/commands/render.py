@@ -13,6 +13,7 @@ from ..checks import CAUTION, SpecReport, check_files
 from ..config import config_loader
 from ..discovery import UsageError, discover
 from ..fsutil import WriteRefused, confined, write_atomic
+from ..problems import plain_text
 from ..summary import IndexRow, build_index, build_summary, render_time
 from ..summary.figure import SVG_MARKER
 
@@ -110,7 +111,7 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     if history:
         add_history(reports, spec_files, registry, config_for)
     for error in config_errors:
-        print(error, file=sys.stderr)
+        print(plain_text(error), file=sys.stderr)
     if spec_id is not None:
         chosen = [r for r in reports if r.id == spec_id]
         if not chosen:
@@ -130,7 +131,7 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     failed = False
     for report in reports:
         if not _renderable(report):
-            print(_why_not(report), file=sys.stderr)
+            print(plain_text(_why_not(report)), file=sys.stderr)
             rows.append(IndexRow(report, None))
             failed = True
             continue
@@ -143,11 +144,11 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     try:
         written = _write(folder, files)
     except (WriteRefused, OSError) as error:
-        print(f"prespec: error: {error}", file=sys.stderr)
+        print(plain_text(f"prespec: error: {error}"), file=sys.stderr)
         return 1
     pages = [p for p in written if p.suffix == ".html"]
     for path in pages:
-        print(f"wrote {path}")
-    print(f"{len(written)} file{'s' if len(written) != 1 else ''} written to {folder}.")
+        print(plain_text(f"wrote {path}"))
+    print(plain_text(f"{len(written)} file{'s' if len(written) != 1 else ''} written to {folder}."))
     print(f"Note: {CAUTION}")
     return 1 if failed or config_errors else 0

@@ -16,7 +16,7 @@ from ..discovery import UsageError
 from ..git import GitProblem, Repository, find_repository
 from ..history import FUTURE_TOLERANCE, commit_day, show_change
 from ..problems import InvalidSpec
-from ..report import console
+from ..report import console, plain
 from ..validation import validate_document
 from ..yamlio import load_bytes
 
@@ -78,8 +78,8 @@ def verify(target: str, paths: list[str], *, as_json: bool = False, now: datetim
         return 0 if ok else 1
     out = console()
     for check in checks:
-        out.print(f"{'ok  ' if check.ok else 'FAIL'}  {check.name}: {check.detail}")
-    out.print(f"{spec_id}: {'registration verified' if ok else 'NOT verified'}")
+        out.print(plain(f"{'ok  ' if check.ok else 'FAIL'}  {check.name}: {check.detail}"))
+    out.print(plain(f"{spec_id}: {'registration verified' if ok else 'NOT verified'}"))
     out.print(f"Note: {CAUTION}")
     return 0 if ok else 1
 
