@@ -227,6 +227,7 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
                     f"the git history of {root} cannot be read ({error}); drift cannot be ruled out. Run "
                     "'git fsck' there and restore the missing objects from another clone"))
             continue
+        tags_by_id = _tags_by_id(all_tags)
         status.repositories.append({"root": str(root), "head": registry.head, "shallow": registry.shallow,
                                     "detached": registry.detached, "commits": len(registry.commits)})
         seen: set[str] = set()
@@ -235,7 +236,7 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
                 continue
             seen.add(report.id)
             extra = config_for(spec_file).locked_fields if config_for else []
-            history = spec_history(registry, report.id, extra, tags=all_tags)
+            history = spec_history(registry, report.id, extra, tags=tags_by_id.get(report.id, []))
             report.history = history
             found = list(history.findings)
             work = worktree_snapshot(report)
@@ -248,20 +249,27 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
         for blob, why in registry.unattributed().items():
             status.problems.append(f"{root}: a version of a spec file (blob {blob[:10]}) cannot be read, and no "
                                    f"spec it belongs to could be named; its history may be incomplete ({why})")
-        deleted = _deleted_reports(registry, seen, scopes, all_tags)
-        reports += deleted + _missing_registrations(registry, seen, scopes, all_tags, deleted)
+        deleted = _deleted_reports(registry, seen, scopes, tags_by_id)
+        reports += deleted + _missing_registrations(registry, seen, scopes, tags_by_id, deleted)
     return status
 
 
-def _missing_registrations(registry: RegistryHistory, seen: set[str], scopes: Sequence[Path],
-                           tags: Sequence[TagInfo], deleted: list[SpecReport]) -> list[SpecReport]:
-    """An error for every registered id (a ``prespec/<id>/vN`` tag) with no spec in the working tree:
-    on its deleted-spec report when there is one, else on a report of its own."""
-    by_id: dict[str, list[Registration]] = {}
+def _tags_by_id(tags: Sequence[TagInfo]) -> dict[str, list[TagInfo]]:
+    """The ``prespec/<id>/vN`` tags grouped by id, in one pass (each spec then looks at its own only)."""
+    out: dict[str, list[TagInfo]] = {}
     for tag in tags:
         parts = tag.name.split("/")
-        if len(parts) == 3 and tag_version(tag.name, parts[1]) is not None and parts[1] not in seen:
-            by_id.setdefault(parts[1], []).extend(registrations(registry.repo, parts[1], [tag]))
+        if len(parts) == 3 and tag_version(tag.name, parts[1]) is not None:
+            out.setdefault(parts[1], []).append(tag)
+    return out
+
+
+def _missing_registrations(registry: RegistryHistory, seen: set[str], scopes: Sequence[Path],
+                           tags_by_id: dict[str, list[TagInfo]], deleted: list[SpecReport]) -> list[SpecReport]:
+    """An error for every registered id (a ``prespec/<id>/vN`` tag) with no spec in the working tree:
+    on its deleted-spec report when there is one, else on a report of its own."""
+    by_id = {spec_id: registrations(registry.repo, spec_id, tags) for spec_id, tags in tags_by_id.items()
+             if spec_id not in seen}
     out = []
     reports = {report.id: report for report in deleted}
     for spec_id, found in sorted(by_id.items()):
@@ -294,12 +302,12 @@ def _unreachable_tags(repo: Repository, spec_id: str, tags: Sequence[TagInfo] | 
 
 
 def _deleted_reports(registry: RegistryHistory, seen: set[str], scopes: Sequence[Path],
-                     tags: Sequence[TagInfo]) -> list[SpecReport]:
+                     tags_by_id: dict[str, list[TagInfo]]) -> list[SpecReport]:
     out = []
     for spec_id, events in registry.events.items():
         if spec_id in seen or (events and events[-1].id_to and events[-1].id_to[0] in seen):
             continue  # a changed id: the new id's report carries it
-        history = spec_history(registry, spec_id, tags=tags)
+        history = spec_history(registry, spec_id, tags=tags_by_id.get(spec_id, []))
         where = registry.head_ids.get(spec_id)
         last_path = where[0] if where else history.last_path
         if last_path is None or not _in_scope(registry.repo.root / last_path, scopes):

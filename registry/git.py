@@ -369,25 +369,25 @@ class Repository:
         return sign in ("true", "yes", "on", "1") or self.config_value("user.signingkey") is not None
 
     def tags(self, pattern: str) -> list[TagInfo]:
-        """Tags matching the ``refs/tags/`` glob ``pattern``, each marked reachable from HEAD or not."""
+        """Tags matching the ``refs/tags/`` glob ``pattern``, each marked reachable from HEAD or not.
+
+        Two ``git for-each-ref`` calls and one ``git cat-file --batch`` for all annotated tags, however many
+        there are (a registry with thousands of registrations is read in one pass)."""
         fmt = "%(refname:strip=2)%00%(objecttype)%00%(objectname)%00%(*objectname)"
         listing = self._run("for-each-ref", f"--format={fmt}", f"refs/tags/{pattern}")
         reachable: set[str] = set()
         if self.head() is not None:
             reachable = set(self._run("for-each-ref", "--merged", "HEAD", "--format=%(refname:strip=2)",
                                       f"refs/tags/{pattern}").split("\n"))
+        rows = [(line.split("\0") + ["", "", ""])[:4] for line in listing.splitlines() if line]
+        objects = self.read_blobs(sorted({obj for _, kind, obj, _ in rows if kind == "tag"}))
         out = []
-        for line in listing.splitlines():
-            name, kind, obj, peeled = (line.split("\0") + ["", "", ""])[:4]
+        for name, kind, obj, peeled in rows:
             if kind == "tag":
-                try:
-                    tag = self._repo.tags[name].tag
-                    tagged = datetime.fromtimestamp(tag.tagged_date, timezone.utc).astimezone(
-                        _offset(tag.tagger_tz_offset))
-                    out.append(TagInfo(name, peeled or tag.object.hexsha, True, tag.message,
-                                       f"{tag.tagger.name} <{tag.tagger.email}>", tagged, name in reachable))
-                except (ValueError, OSError, AttributeError) as error:
-                    raise GitProblem(f"git cannot read the tag {name}: {error}") from None
+                if obj not in objects:
+                    raise GitProblem(f"git cannot read the tag {name}: its object {obj[:10]} is missing or corrupt")
+                target, tagger, tagged, message = _parse_tag(objects[obj], name)
+                out.append(TagInfo(name, peeled or target, True, message, tagger, tagged, name in reachable))
             else:
                 out.append(TagInfo(name, obj, False, "", None, None, name in reachable))
         return out
@@ -478,10 +478,33 @@ def _gist(stderr: str) -> str:
     return "; ".join(fatal or lines)
 
 
-def _offset(seconds_west: int) -> timezone:
-    from datetime import timedelta
+_TAGGER = re.compile(r"(.*) <([^<>]*)> (\d+) ([+-])(\d\d)(\d\d)$")
 
-    return timezone(timedelta(seconds=-seconds_west))
+
+def _parse_tag(raw: bytes, name: str) -> tuple[str, str | None, datetime | None, str]:
+    """(object it points at, tagger, tag date, message) of an annotated tag object's bytes (read as
+    gitpython reads them: headers, a blank line, the message with any signature)."""
+    lines = raw.decode("utf-8", "replace").splitlines()
+    target = lines[0].partition(" ")[2] if lines and lines[0].startswith("object ") else ""
+    tagger: str | None = None
+    tagged: datetime | None = None
+    headers = 0
+    for headers, line in enumerate(lines):
+        if not line:
+            break
+        if line.startswith("tagger "):
+            match = _TAGGER.match(line[len("tagger "):])
+            if match is None:
+                raise GitProblem(f"git cannot read the tag {name}: its tagger line is malformed")
+            tagger = f"{match.group(1)} <{match.group(2)}>"
+            sign = -1 if match.group(4) == "-" else 1
+            offset = timedelta(hours=int(match.group(5)), minutes=int(match.group(6)))
+            moment = datetime.fromtimestamp(int(match.group(3)), timezone.utc)
+            tagged = moment.astimezone(timezone(sign * offset)) if offset < timedelta(hours=24) else \
+                moment.replace(tzinfo=_ODD_UTC)
+    else:
+        headers = len(lines)
+    return target, tagger, tagged, "\n".join(lines[headers + 1:])
 
 
 def find_repository(path: Path) -> Repository | None:

@@ -455,3 +455,72 @@ def test_an_id_on_the_command_line_is_printed_without_controls(lab, run):
         result = run(command, "no-such\x1b[2J\u009b", lab.registry)
         assert result.status in (1, 2)
         assert not _raw_controls(result.out + result.err), (command, result.err)
+
+
+# ------------------------------------------------------------------ tags at scale
+
+TAG_SPECS, TAG_VERSIONS = 40, 500  # 20,000 registration tags
+
+
+def many_tags_lab(root, specs=TAG_SPECS, versions=TAG_VERSIONS):
+    """A registry of ``specs`` specs, each with ``versions`` annotated registration tags (pinned tagger
+    and date). The tag objects go into one pack file written here and indexed by ``git index-pack``
+    (the pack format: git's Documentation/gitformat-pack.txt), the refs into ``packed-refs``, so 20,000
+    tags take a second rather than a process or a file per tag."""
+    import hashlib
+    import zlib
+
+    lab = Lab(root)
+    for i in range(specs):
+        lab.write(f"study-{i:03d}.yaml", spec_text(f"study-{i:03d}"))
+    head = lab.commit("plan", BEFORE)
+    objects, refs = [], []
+    for i in range(specs):
+        for v in range(1, versions + 1):
+            name = f"prespec/study-{i:03d}/v{v}"
+            message = format_message({"id": f"study-{i:03d}", "path": f"registry/study-{i:03d}.yaml",
+                                      "commit": head, "start": "2020-03-02", "content-sha256": "0" * 64,
+                                      "tool": "prespec 0.1.0"})
+            body = (f"object {head}\ntype commit\ntag {name}\ntagger Lab lead <lead@lab.example> 1578733200 +0100"
+                    f"\n\n{message}").encode()
+            objects.append(body)
+            refs.append((f"refs/tags/{name}", hashlib.sha1(b"tag %d\0" % len(body) + body).hexdigest()))
+    pack = bytearray(b"PACK" + (2).to_bytes(4, "big") + len(objects).to_bytes(4, "big"))
+    for body in objects:
+        size = len(body)
+        header = [(4 << 4) | (size & 0x0F)]  # object type 4: tag
+        size >>= 4
+        while size:
+            header[-1] |= 0x80
+            header.append(size & 0x7F)
+            size >>= 7
+        pack += bytes(header) + zlib.compress(body)
+    pack += hashlib.sha1(pack).digest()
+    _git(lab, "index-pack", "--stdin", stdin=bytes(pack))
+    lines = ["# pack-refs with: peeled fully-peeled sorted "]
+    for ref, sha in sorted(refs):
+        lines += [f"{sha} {ref}", f"^{head}"]
+    (lab.root / ".git" / "packed-refs").write_text("\n".join(lines) + "\n", encoding="ascii")
+    return lab
+
+
+def test_check_reads_registration_tags_once_per_run(tmp_path, run, monkeypatch):
+    import registry.audit as audit_module
+    import registry.git as git_module
+
+    lab = many_tags_lab(tmp_path / "lab")
+    looked_at = []
+    real_version = audit_module.tag_version
+    monkeypatch.setattr(audit_module, "tag_version", lambda name, spec_id: looked_at.append(name) or
+                        real_version(name, spec_id))
+    listings = []
+    real_tags = git_module.Repository.tags
+    monkeypatch.setattr(git_module.Repository, "tags", lambda self, pattern: listings.append(pattern) or
+                        real_tags(self, pattern))
+    result = run("check", lab.registry, "--json")
+    tags = TAG_SPECS * TAG_VERSIONS
+    assert len(result.json()["specs"]) == TAG_SPECS, result.err
+    assert listings == ["prespec"]  # the tags are listed once for the whole registry
+    # each tag is looked at a bounded number of times, not once per spec (which would be 40 x 20,000)
+    assert len(looked_at) <= 3 * tags, len(looked_at)
+    assert all(s["history"]["verdict"] == "clean" for s in result.json()["specs"])
