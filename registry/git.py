@@ -354,6 +354,31 @@ class Repository:
                 out.append(record[3:].decode("utf-8", "surrogateescape"))
         return out
 
+    def matches_head(self, relpath: str, path: Path) -> bool:
+        """Whether the file at ``path`` holds exactly the bytes of ``relpath``'s blob in HEAD.
+
+        Compares blob ids (the file's bytes hashed as git hashes a blob) against ``git ls-tree``, so it
+        neither consults the index (``assume-unchanged``, ``skip-worktree``) nor rewrites it, and runs
+        no program the repository configures (fsmonitor, clean filters, hooks)."""
+        import hashlib
+
+        if self.head() is None:
+            return False
+        listing = self._run("ls-tree", "-z", "--full-tree", "HEAD", "--", relpath, stdout_as_string=False)
+        committed = None
+        for record in listing.split(b"\0"):  # type: ignore[union-attr]
+            meta, _, found = record.partition(b"\t")
+            parts = meta.split()
+            if found.decode("utf-8", "surrogateescape") == relpath and len(parts) == 3 and parts[1] == b"blob":
+                committed = parts[2].decode()
+        if committed is None:
+            return False
+        try:
+            raw = Path(path).read_bytes()
+        except OSError:
+            return False
+        return hashlib.sha1(b"blob %d\0" % len(raw) + raw).hexdigest() == committed
+
     def is_tracked(self, relpath: str) -> bool:
         return bool(self._run("ls-files", "--", relpath).strip())
 

@@ -524,3 +524,46 @@ def test_check_reads_registration_tags_once_per_run(tmp_path, run, monkeypatch):
     # each tag is looked at a bounded number of times, not once per spec (which would be 40 x 20,000)
     assert len(looked_at) <= 3 * tags, len(looked_at)
     assert all(s["history"]["verdict"] == "clean" for s in result.json()["specs"])
+
+
+# ------------------------------------------------------------------ the summary's "working copy identical"
+
+
+def _provenance(lab):
+    from registry.audit import add_history
+    from registry.checks import check_files
+    from registry.discovery import discover
+    from registry.summary.provenance import provenance, render_time
+
+    files = discover([str(lab.registry)])
+    reports = check_files(files)
+    add_history(reports, files, [str(lab.registry)])
+    return provenance(reports[0], files[0].path, render_time())
+
+
+def test_the_summary_compares_blobs_not_the_index(lab):
+    lab.write(SPEC, spec_text())
+    lab.commit("plan", BEFORE)
+    assert _provenance(lab).modified is False
+    lab.write(SPEC, spec_text(per_group="20"))
+    _git(lab, "update-index", "--assume-unchanged", f"registry/{SPEC}")  # git status now hides the edit
+    assert _git(lab, "status", "--porcelain") == ""
+    assert _provenance(lab).modified is True
+
+
+def test_the_summary_runs_no_repository_program_and_leaves_the_index_alone(lab, tmp_path):
+    lab.write(SPEC, spec_text())
+    lab.commit("plan", BEFORE)
+    marker = tmp_path / "ran"
+    hook = tmp_path / "fsmonitor.sh"
+    hook.write_text(f"#!/bin/sh\necho ran >> '{marker}'\nexit 1\n", encoding="utf-8")
+    hook.chmod(0o755)
+    _git(lab, "config", "core.fsmonitor", str(hook))
+    _git(lab, "config", "filter.spy.clean", f"sh -c 'echo ran >> {marker}; cat'")
+    (lab.root / ".gitattributes").write_text("*.yaml filter=spy\n", encoding="utf-8")
+    index = lab.root / ".git" / "index"
+    before = (index.read_bytes(), index.stat().st_mtime_ns)
+    (lab.registry / SPEC).touch()  # a stat change git status would refresh the index for
+    assert _provenance(lab).modified is False
+    assert not marker.exists(), marker.read_text()
+    assert (index.read_bytes(), index.stat().st_mtime_ns) == before

@@ -61,7 +61,7 @@ def provenance(report: SpecReport, path: Path, rendered_at: datetime) -> Provena
     tags: tuple[tuple[str, str], ...] = ()
     if repo is not None and relative is not None:
         try:
-            modified = relative in repo.dirty_paths() or not repo.is_tracked(relative)
+            modified = not repo.matches_head(relative, path)  # blobs compared: no index, no repository programs
             tags = tuple((r.tag.name, r.tag.commit) for r in registrations(repo, spec.id))
         except GitProblem:
             modified = True  # cannot tell: never claim the summary matches a commit
