@@ -567,3 +567,18 @@ def test_the_summary_runs_no_repository_program_and_leaves_the_index_alone(lab, 
     assert _provenance(lab).modified is False
     assert not marker.exists(), marker.read_text()
     assert (index.read_bytes(), index.stat().st_mtime_ns) == before
+
+
+# ------------------------------------------------------------------ smaller ones
+
+
+@pytest.mark.parametrize("n", ["1000000000", "100000001", "0", "\u0663\u0660"])  # "٣٠": Arabic-Indic digits
+def test_size_n_outside_the_documented_cap_or_not_ascii_digits_is_refused(run, n):
+    # the cap is power.base.MAX_N = 100,000,000 per group (docs/errors.md, Caps)
+    result = run("size", "two-sample-t", "--d", "0.5", "--n", n)
+    assert result.status == 2, result.out
+    assert "--n" in result.err
+
+
+def test_size_n_at_the_cap_is_accepted(run):
+    assert run("size", "two-sample-t", "--d", "0.5", "--n", "100000000").status == 0

@@ -19,7 +19,7 @@ from ..discovery import UsageError
 from ..power import (InfeasibleDesign, InvalidDesign, PowerAtN, SampleSize, UnknownFamily, design_from_params,
                      enrolment, family_names, power_at, solve_sample_size)
 from ..power.assumptions import DEFAULT_REPS, DEFAULT_SEED, MAX_REPS, SimulationPlan
-from ..power.base import DesignBase
+from ..power.base import MAX_N, DesignBase
 from ..power.simulate import InvalidSimulation, SimulatedPower, chunk_reps, simulated_power
 from ..report import console
 
@@ -46,7 +46,7 @@ _EFFECT_OPTIONS: tuple[tuple[str, str, str, str], ...] = (
 _DESIGN_LABELS = {"alpha", "power", "alternative", "allocation_ratio", "attrition", "test", "effect", "simulation",
                   "pilot", "effect_rationale", "variability_source"}
 _SIMULATION_FIELDS = set(SimulationPlan.model_fields) - {"reps", "seed", "distribution"}
-_INT_RE = re.compile(r"^[-+]?\d+$")
+_INT_RE = re.compile(r"^[-+]?[0-9]+$")  # ASCII digits only: int() would also read other scripts' digits
 
 
 def _number(text: str) -> float:
@@ -72,6 +72,13 @@ def _whole(text: str) -> int:
     if not _INT_RE.match(text.strip()):
         raise argparse.ArgumentTypeError(f"must be a whole number; got {text!r}")
     return int(text)
+
+
+def _per_group(text: str) -> int:
+    value = _whole(text)
+    if not 1 <= value <= MAX_N:
+        raise argparse.ArgumentTypeError(f"must be a whole number from 1 to {MAX_N:,} per group; got {text!r}")
+    return value
 
 
 def _scalar(text: str) -> Any:
@@ -121,7 +128,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="direction of the alternative (default two-sided)")
     design.add_argument("--ratio", type=_number, default=None, metavar="N2_OVER_N1",
                         help="two-group designs: n2 / n1 (default 1)")
-    design.add_argument("--n", type=_whole, default=None, metavar="N",
+    design.add_argument("--n", type=_per_group, default=None, metavar="N",
                         help="report the power at N analysable units per group and the smallest detectable "
                         "effect there, instead of the sample size")
     sim = parser.add_argument_group("simulation")
