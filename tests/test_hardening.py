@@ -582,3 +582,25 @@ def test_size_n_outside_the_documented_cap_or_not_ascii_digits_is_refused(run, n
 
 def test_size_n_at_the_cap_is_accepted(run):
     assert run("size", "two-sample-t", "--d", "0.5", "--n", "100000000").status == 0
+
+
+# ------------------------------------------------------------------ render safety
+
+
+@pytest.mark.parametrize("folder", ["my data", "data `whoami`", "x $(touch pwned) y", "it's"])
+def test_the_verify_command_on_the_summary_is_one_shell_word_per_argument(folder):
+    # POSIX shell word splitting, as Python's shlex implements it (common practice)
+    import html
+    import re
+    import shlex
+
+    from markdown_it import MarkdownIt
+
+    from registry.summary import mdtext
+    from registry.summary.provenance import _verify_command
+
+    command = _verify_command("mouse-diet", f"{folder}/mouse-diet.yaml")
+    assert shlex.split(command) == ["prespec", "verify", "mouse-diet", folder]
+    page = MarkdownIt().render(mdtext.code(command))  # CommonMark, the summary's Markdown flavour
+    shown = re.search(r"<code>(.*?)</code>", page)
+    assert shown and html.unescape(shown.group(1)) == command, page

@@ -82,4 +82,22 @@ def provenance(report: SpecReport, path: Path, rendered_at: datetime) -> Provena
 def _verify_command(spec_id: str, relative: str | None) -> str:
     """What a reviewer runs from the root of a clone of the registry's repository."""
     folder = Path(relative).parent.as_posix() if relative else "."
-    return f"prespec verify {spec_id}" if folder == "." else f"prespec verify {spec_id} {folder}"
+    return f"prespec verify {spec_id}" if folder == "." else f"prespec verify {spec_id} {_shell_word(folder)}"
+
+
+def _shell_word(text: str) -> str:
+    """``text`` as one POSIX shell word (spaces, backticks, ``$(...)`` stay literal); a name with control
+    characters in ``$'...'`` form, which bash and zsh read.
+
+    >>> _shell_word("my data/$(id)")
+    "'my data/$(id)'"
+    >>> print(_shell_word("a" + chr(10) + "b"))
+    $'a\\x0ab'
+    """
+    import shlex
+
+    if text.isprintable():
+        return shlex.quote(text)
+    body = "".join("\\" + ch if ch in "'\\" else ch if ch.isprintable() else
+                   f"\\x{ord(ch):02x}" if ord(ch) < 256 else f"\\u{ord(ch) & 0xFFFF:04x}" for ch in text)
+    return f"$'{body}'"
