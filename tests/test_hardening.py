@@ -604,3 +604,42 @@ def test_the_verify_command_on_the_summary_is_one_shell_word_per_argument(folder
     page = MarkdownIt().render(mdtext.code(command))  # CommonMark, the summary's Markdown flavour
     shown = re.search(r"<code>(.*?)</code>", page)
     assert shown and html.unescape(shown.group(1)) == command, page
+
+
+@pytest.mark.parametrize("kind", ["fifo", "symlink"])
+def test_schema_out_never_replaces_a_fifo_or_a_link(tmp_path, run, kind):
+    target = tmp_path / "schema.json"
+    elsewhere = tmp_path / "elsewhere.json"
+    elsewhere.write_text("keep me", encoding="utf-8")
+    if kind == "fifo":
+        os.mkfifo(target)
+    else:
+        target.symlink_to(elsewhere)
+    result = run("schema", "--out", target)
+    assert result.status == 2, result.err
+    assert "prespec will not" in result.err or "never a link" in result.err
+    assert (target.is_fifo() if kind == "fifo" else target.is_symlink())
+    assert elsewhere.read_text(encoding="utf-8") == "keep me"
+
+
+def test_render_refuses_a_fifo_in_the_output_folder_without_opening_it(tmp_path):
+    from registry.commands import render as render_command
+    from registry.fsutil import WriteRefused
+
+    os.mkfifo(tmp_path / "mouse-diet.md")
+    with pytest.raises(WriteRefused, match="not a regular file"):
+        render_command._targets(tmp_path, ["mouse-diet.html", "mouse-diet.md"])  # would block on open()
+
+
+def test_render_replaces_only_files_whose_first_line_is_its_marker(tmp_path):
+    from registry.commands import render as render_command
+    from registry.fsutil import WriteRefused
+
+    own = tmp_path / "a.md"
+    own.write_text("[//]: # (prespec design summary of a. Generated from the spec; edit the spec, not this file.)\n",
+                   encoding="utf-8")
+    assert render_command._targets(tmp_path, ["a.md"]) == [own]
+    notes = tmp_path / "b.md"
+    notes.write_text("# My notes\n\nI once ran [//]: # (prespec something) here.\n", encoding="utf-8")
+    with pytest.raises(WriteRefused, match="not written by prespec"):
+        render_command._targets(tmp_path, ["b.md"])

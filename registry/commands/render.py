@@ -57,15 +57,23 @@ def _why_not(report: SpecReport) -> str:
 
 
 def _own(path: Path) -> bool:
+    """Whether ``path`` is a regular file prespec wrote: its marker begins the first line (Markdown) or
+    one of the first lines (HTML, SVG). Opened without blocking and only when it is a regular file."""
+    import stat
+
     marker = _OWN_MARKERS.get(path.suffix)
     if marker is None:
         return False
     try:
-        with path.open(encoding="utf-8", errors="replace") as handle:
-            head = handle.read(4096)
+        if not stat.S_ISREG(os.lstat(path).st_mode):
+            return False
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_NOFOLLOW", 0))
+        with os.fdopen(fd, "rb") as handle:
+            head = handle.read(4096).decode("utf-8", "replace").splitlines()
     except OSError:
         return False
-    return marker in head
+    lines = head[:1] if path.suffix == ".md" else head[:12]
+    return any(line.lstrip().startswith(marker) for line in lines)
 
 
 def _targets(out: Path, names: list[str]) -> list[Path]:
@@ -78,6 +86,9 @@ def _targets(out: Path, names: list[str]) -> list[Path]:
                                "write through it, since it may lead outside the output folder")
         if target.is_dir():
             raise WriteRefused(f"{target} is a folder; prespec writes a file of that name")
+        if target.exists() and not target.is_file():
+            raise WriteRefused(f"{target} is not a regular file (a FIFO, device or socket); prespec will not open "
+                               "or replace it")
         if target.exists() and not _own(target):
             raise WriteRefused(f"{target} exists and was not written by prespec render; "
                                "move it away or choose another --out folder")
