@@ -643,3 +643,24 @@ def test_render_replaces_only_files_whose_first_line_is_its_marker(tmp_path):
     notes.write_text("# My notes\n\nI once ran [//]: # (prespec something) here.\n", encoding="utf-8")
     with pytest.raises(WriteRefused, match="not written by prespec"):
         render_command._targets(tmp_path, ["b.md"])
+
+
+def test_ctrl_c_while_prespec_starts_is_reported_not_a_traceback(monkeypatch, capsys):
+    import builtins
+    import sys
+
+    from registry.__main__ import entry
+
+    real_import = builtins.__import__
+
+    def interrupted(name, globals=None, locals=None, fromlist=(), level=0):
+        if name in ("cli", "registry.cli") and level in (0, 1):
+            raise KeyboardInterrupt
+        return real_import(name, globals, locals, fromlist, level)
+
+    monkeypatch.delitem(sys.modules, "registry.cli", raising=False)
+    monkeypatch.setattr(builtins, "__import__", interrupted)
+    with pytest.raises(SystemExit) as exit_:
+        entry()
+    assert exit_.value.code == 130
+    assert capsys.readouterr().err == "prespec: interrupted\n"
