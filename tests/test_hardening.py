@@ -664,3 +664,12 @@ def test_ctrl_c_while_prespec_starts_is_reported_not_a_traceback(monkeypatch, ca
         entry()
     assert exit_.value.code == 130
     assert capsys.readouterr().err == "prespec: interrupted\n"
+
+
+@pytest.mark.parametrize("encoding", ["utf-32-le", "utf-32-be", "utf-16-le", "utf-16-be"])
+def test_utf16_and_utf32_without_a_byte_order_mark_get_the_encoding_message(tmp_path, run, encoding):
+    # Python's codecs write no byte-order mark for the -le/-be variants (Python docs, codecs)
+    (tmp_path / "a.yaml").write_bytes(spec_text("a-spec").encode(encoding))
+    result = run("check", "--no-history", tmp_path, "--json")
+    message = result.json()["specs"][0]["findings"][0]["message"]
+    assert "looks like UTF-16 or UTF-32 text without a byte-order mark" in message, message
