@@ -228,6 +228,7 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
                     f"the git history of {root} cannot be read ({error}); drift cannot be ruled out. Run "
                     "'git fsck' there and restore the missing objects from another clone"))
             continue
+        tags_by_id = _tags_by_id(all_tags)
         status.repositories.append({"root": str(root), "head": registry.head, "shallow": registry.shallow,
                                     "detached": registry.detached, "commits": len(registry.commits)})
         for report, _ in members:  # a committed file parsed and validated once, not again from git
@@ -240,7 +241,7 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
                 continue
             seen.add(report.id)
             extra = config_for(spec_file).locked_fields if config_for else []
-            history = spec_history(registry, report.id, extra, tags=all_tags)
+            history = spec_history(registry, report.id, extra, tags=tags_by_id.get(report.id, []))
             report.history = history
             found = list(history.findings)
             work = worktree_snapshot(report)
@@ -253,7 +254,8 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
         for blob, why in registry.unattributed().items():
             status.problems.append(f"{root}: a version of a spec file (blob {blob[:10]}) cannot be read, and no "
                                    f"spec it belongs to could be named; its history may be incomplete ({why})")
-        reports += _deleted_reports(registry, seen, scopes, all_tags)
+        deleted = _deleted_reports(registry, seen, scopes, tags_by_id)
+        reports += deleted + _missing_registrations(registry, seen, scopes, tags_by_id, deleted)
     return status
 
 
@@ -271,6 +273,41 @@ def _no_history(report: SpecReport, spec_file: SpecFile,
                ("data_collection", "start"))
 
 
+def _tags_by_id(tags: Sequence[TagInfo]) -> dict[str, list[TagInfo]]:
+    """The ``prespec/<id>/vN`` tags grouped by id, in one pass (each spec then looks at its own only)."""
+    out: dict[str, list[TagInfo]] = {}
+    for tag in tags:
+        parts = tag.name.split("/")
+        if len(parts) == 3 and tag_version(tag.name, parts[1]) is not None:
+            out.setdefault(parts[1], []).append(tag)
+    return out
+
+
+def _missing_registrations(registry: RegistryHistory, seen: set[str], scopes: Sequence[Path],
+                           tags_by_id: dict[str, list[TagInfo]], deleted: list[SpecReport]) -> list[SpecReport]:
+    """An error for every registered id (a ``prespec/<id>/vN`` tag) with no spec in the working tree:
+    on its deleted-spec report when there is one, else on a report of its own."""
+    by_id = {spec_id: registrations(registry.repo, spec_id, tags) for spec_id, tags in tags_by_id.items()
+             if spec_id not in seen}
+    out = []
+    reports = {report.id: report for report in deleted}
+    for spec_id, found in sorted(by_id.items()):
+        last = max(found, key=lambda r: r.version)
+        path = last.fields.get("path")
+        if path and not _in_scope(registry.repo.root / path, scopes):
+            continue
+        report = reports.get(spec_id)
+        if report is None:
+            report = SpecReport(path=display_name(registry.repo.root / path) if path else last.tag.name, id=spec_id)
+            out.append(report)
+        report.findings.append(Finding(
+            "registered-missing", "error", "id", None,
+            f"spec {spec_id!r} is registered (tag {last.tag.name}" + (f", file {path}" if path else "") +
+            ") but no spec with this id is in the working tree: a registered experiment's record must stay; "
+            "restore the file, and withdraw the experiment with status: withdrawn rather than deleting it"))
+    return out
+
+
 def _unreachable_tags(repo: Repository, spec_id: str, tags: Sequence[TagInfo] | None) -> list[Finding]:
     out = []
     for registration in registrations(repo, spec_id, tags):
@@ -284,12 +321,12 @@ def _unreachable_tags(repo: Repository, spec_id: str, tags: Sequence[TagInfo] | 
 
 
 def _deleted_reports(registry: RegistryHistory, seen: set[str], scopes: Sequence[Path],
-                     tags: Sequence[TagInfo]) -> list[SpecReport]:
+                     tags_by_id: dict[str, list[TagInfo]]) -> list[SpecReport]:
     out = []
     for spec_id, events in registry.events.items():
-        if spec_id in seen:
-            continue
-        history = spec_history(registry, spec_id, tags=tags)
+        if spec_id in seen or (events and events[-1].id_to and events[-1].id_to[0] in seen):
+            continue  # a changed id: the new id's report carries it
+        history = spec_history(registry, spec_id, tags=tags_by_id.get(spec_id, []))
         where = registry.head_ids.get(spec_id)
         last_path = where[0] if where else history.last_path
         if last_path is None or not _in_scope(registry.repo.root / last_path, scopes):

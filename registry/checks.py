@@ -17,7 +17,7 @@ from typing import Any, Literal
 from .config import RegistryConfig
 from .discovery import SpecFile
 from .model import ID_PATTERN, Spec
-from .pilot import InvalidPilot, PilotMissing, read_pilot
+from .pilot import InvalidPilot, PilotMissing, pilot_root, read_pilot
 from .power import EventsOnly, InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
 from .power.simulate import InvalidSimulation, SimulatedPower, simulate_plan
 from .problems import InvalidSpec, printable
@@ -350,7 +350,7 @@ def _pilot(report: SpecReport, spec: Spec, spec_file: SpecFile) -> None:
     shown = (Path(spec_file.display).parent / source.file).as_posix()
     loc = ("design", "pilot", "file")
     try:
-        summary = read_pilot(path, source.column, source.confidence, shown=shown)
+        summary = read_pilot(path, source.column, source.confidence, shown=shown, root=pilot_root(spec_file.root))
     except PilotMissing as error:
         report.add("pilot-missing", "error", "design.pilot.file",
                    f"{error}; the SD assumption can no longer be traced to its data. Restore the file or "

@@ -17,6 +17,7 @@ from types import ModuleType
 from . import __version__
 from .commands import check, demo, hash, history, new, pilot, register, render, schema, size, verify
 from .discovery import UsageError
+from .problems import plain_text
 
 __all__ = ["main", "COMMANDS"]
 
@@ -68,7 +69,7 @@ def main(argv: list[str] | None = None) -> int:
             return 2
         return int(args.run(args))
     except UsageError as error:
-        print(f"prespec: error: {error}", file=sys.stderr)
+        print(plain_text(f"prespec: error: {error}"), file=sys.stderr)
         return 2
     except SystemExit as exit_:  # --help and --version
         return int(exit_.code or 0) if isinstance(exit_.code, int) or exit_.code is None else 2
@@ -80,7 +81,7 @@ def main(argv: list[str] | None = None) -> int:
     except Exception as error:  # noqa: BLE001 - last line of defence: no traceback for users
         if os.environ.get("PRESPEC_DEBUG"):
             traceback.print_exc()
-        print(f"prespec: internal error: {type(error).__name__}: {error}\n"
+        print(f"prespec: internal error: {type(error).__name__}: {plain_text(error)}\n"
               "This is a bug in prespec; set PRESPEC_DEBUG=1 for details and please report it.", file=sys.stderr)
         return 3
 

@@ -82,6 +82,11 @@ def write_atomic(path: Path | str, text: str | bytes, *, overwrite: bool = True)
         raise WriteRefused(f"{path} already exists; prespec will not overwrite it")
     if path.is_dir():
         raise WriteRefused(f"{path} is a folder; name a file to write")
+    if path.is_symlink():
+        raise WriteRefused(f"{path} is a symbolic link; prespec replaces only regular files, never a link or "
+                           "what it points at")
+    if path.exists() and not path.is_file():
+        raise WriteRefused(f"{path} is not a regular file (a device, FIFO or socket); prespec will not replace it")
     path.parent.mkdir(parents=True, exist_ok=True)
     mode = _mode_for(path, overwrite)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)

@@ -9,12 +9,18 @@ the commits reachable from HEAD; blob contents come through gitpython's persiste
 from __future__ import annotations
 
 import os
+import re
 from dataclasses import dataclass
-from datetime import datetime, timezone
+from datetime import datetime, timedelta, timezone, tzinfo
 from pathlib import Path
 
-import git
-from git.exc import GitCommandError, InvalidGitRepositoryError, NoSuchPathError
+# without git on PATH gitpython would refuse to import; prespec then says so only where git is needed
+os.environ.setdefault("GIT_PYTHON_REFRESH", "quiet")
+
+import git  # noqa: E402
+from git.exc import GitCommandError, InvalidGitRepositoryError, NoSuchPathError  # noqa: E402
+
+from .discovery import UsageError  # noqa: E402
 
 __all__ = [
     "Commit",
@@ -23,9 +29,11 @@ __all__ = [
     "TagInfo",
     "Repository",
     "GitProblem",
+    "GitMissing",
     "find_repository",
     "init_repository",
     "NULL_SHA",
+    "odd_offset",
 ]
 
 NULL_SHA = "0" * 40
@@ -36,6 +44,20 @@ _FORMAT = "%x1e%H%x00%P%x00%an%x00%ae%x00%aI%x00%cn%x00%ce%x00%cI%x00"
 
 class GitProblem(RuntimeError):
     """git could not do what prespec asked; the message says what and why."""
+
+
+class GitMissing(UsageError):
+    """No ``git`` program to run: the commands that read history stop with one line (exit 2)."""
+
+
+def _require_git() -> None:
+    import shutil
+
+    program = git.Git.GIT_PYTHON_GIT_EXECUTABLE or "git"
+    if shutil.which(program) is None:
+        raise GitMissing(f"git is not installed or not on PATH ({program!r} not found): prespec needs it to read "
+                         "or write a registry's git history; install git ('prespec check --no-history' checks the "
+                         "specs alone)")
 
 
 @dataclass(frozen=True)
@@ -104,7 +126,52 @@ class TagInfo:
 
 
 def _date(text: str) -> datetime:
-    return datetime.fromisoformat(text.strip().replace("Z", "+00:00"))
+    """A date git printed in ISO form; an offset Python cannot hold (git accepts up to +-99:59, Python
+    less than 24 hours) is read as the same moment in UTC and marked by :func:`odd_offset`.
+
+    >>> _date("2020-01-14T13:59:00+99:59").isoformat()
+    '2020-01-10T10:00:00+00:00'
+    """
+    text = text.strip().replace("Z", "+00:00")
+    try:
+        return datetime.fromisoformat(text)
+    except ValueError:
+        pass
+    match = _ISO_OFFSET.fullmatch(text)
+    try:
+        if match is None:
+            raise ValueError(text)
+        local = datetime.fromisoformat(match.group(1))
+    except ValueError:
+        raise GitProblem(f"git recorded a date prespec cannot read: {text!r}") from None
+    sign = -1 if match.group(2) == "-" else 1
+    offset = timedelta(hours=int(match.group(3)), minutes=int(match.group(4)))
+    return (local - sign * offset).replace(tzinfo=_ODD_UTC)
+
+
+class _OddUTC(tzinfo):
+    """UTC, for a moment git recorded with an offset of 24 hours or more (an impossible time zone)."""
+
+    def utcoffset(self, dt: datetime | None) -> timedelta:
+        return timedelta(0)
+
+    def dst(self, dt: datetime | None) -> timedelta:
+        return timedelta(0)
+
+    def tzname(self, dt: datetime | None) -> str:
+        return "UTC"
+
+    def __repr__(self) -> str:
+        return "odd offset, read as UTC"
+
+
+_ODD_UTC = _OddUTC()
+_ISO_OFFSET = re.compile(r"(\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d)([+-])(\d\d):?(\d\d)")
+
+
+def odd_offset(moment: datetime) -> bool:
+    """Whether git recorded ``moment`` with a time-zone offset no real zone has (24 hours or more)."""
+    return moment.tzinfo is _ODD_UTC
 
 
 def _parse_log(raw: bytes, suffixes: tuple[str, ...]) -> list[LogEntry]:
@@ -180,8 +247,13 @@ class Repository:
         """The commit HEAD points at, or ``None`` in a repository without commits."""
         try:
             return self._repo.head.commit.hexsha
-        except ValueError:
-            return None
+        except ValueError as error:
+            try:  # an unborn branch names no commit; a missing or corrupt one is a fault
+                sha = self._repo.git.execute(["git", "rev-parse", "-q", "--verify", "HEAD"]).strip()
+            except GitCommandError:
+                return None
+            raise GitProblem(f"HEAD names commit {sha[:10]}, which git cannot read "
+                             f"({_gist(str(error))})") from None
 
     def detached(self) -> bool:
         """Whether HEAD names a commit directly rather than a branch (a detached HEAD)."""
@@ -282,6 +354,31 @@ class Repository:
                 out.append(record[3:].decode("utf-8", "surrogateescape"))
         return out
 
+    def matches_head(self, relpath: str, path: Path) -> bool:
+        """Whether the file at ``path`` holds exactly the bytes of ``relpath``'s blob in HEAD.
+
+        Compares blob ids (the file's bytes hashed as git hashes a blob) against ``git ls-tree``, so it
+        neither consults the index (``assume-unchanged``, ``skip-worktree``) nor rewrites it, and runs
+        no program the repository configures (fsmonitor, clean filters, hooks)."""
+        import hashlib
+
+        if self.head() is None:
+            return False
+        listing = self._run("ls-tree", "-z", "--full-tree", "HEAD", "--", relpath, stdout_as_string=False)
+        committed = None
+        for record in listing.split(b"\0"):  # type: ignore[union-attr]
+            meta, _, found = record.partition(b"\t")
+            parts = meta.split()
+            if found.decode("utf-8", "surrogateescape") == relpath and len(parts) == 3 and parts[1] == b"blob":
+                committed = parts[2].decode()
+        if committed is None:
+            return False
+        try:
+            raw = Path(path).read_bytes()
+        except OSError:
+            return False
+        return hashlib.sha1(b"blob %d\0" % len(raw) + raw).hexdigest() == committed
+
     def is_tracked(self, relpath: str) -> bool:
         return bool(self._run("ls-files", "--", relpath).strip())
 
@@ -313,25 +410,25 @@ class Repository:
         return int(status), "\n".join(part for part in (str(out).strip(), str(err).strip()) if part)
 
     def tags(self, pattern: str) -> list[TagInfo]:
-        """Tags matching the ``refs/tags/`` glob ``pattern``, each marked reachable from HEAD or not."""
+        """Tags matching the ``refs/tags/`` glob ``pattern``, each marked reachable from HEAD or not.
+
+        Two ``git for-each-ref`` calls and one ``git cat-file --batch`` for all annotated tags, however many
+        there are (a registry with thousands of registrations is read in one pass)."""
         fmt = "%(refname:strip=2)%00%(objecttype)%00%(objectname)%00%(*objectname)"
         listing = self._run("for-each-ref", f"--format={fmt}", f"refs/tags/{pattern}")
         reachable: set[str] = set()
         if self.head() is not None:
             reachable = set(self._run("for-each-ref", "--merged", "HEAD", "--format=%(refname:strip=2)",
                                       f"refs/tags/{pattern}").split("\n"))
+        rows = [(line.split("\0") + ["", "", ""])[:4] for line in listing.splitlines() if line]
+        objects = self.read_blobs(sorted({obj for _, kind, obj, _ in rows if kind == "tag"}))
         out = []
-        for line in listing.splitlines():
-            name, kind, obj, peeled = (line.split("\0") + ["", "", ""])[:4]
+        for name, kind, obj, peeled in rows:
             if kind == "tag":
-                try:
-                    tag = self._repo.tags[name].tag
-                    tagged = datetime.fromtimestamp(tag.tagged_date, timezone.utc).astimezone(
-                        _offset(tag.tagger_tz_offset))
-                    out.append(TagInfo(name, peeled or tag.object.hexsha, True, tag.message,
-                                       f"{tag.tagger.name} <{tag.tagger.email}>", tagged, name in reachable))
-                except (ValueError, OSError, AttributeError) as error:
-                    raise GitProblem(f"git cannot read the tag {name}: {error}") from None
+                if obj not in objects:
+                    raise GitProblem(f"git cannot read the tag {name}: its object {obj[:10]} is missing or corrupt")
+                target, tagger, tagged, message = _parse_tag(objects[obj], name)
+                out.append(TagInfo(name, peeled or target, True, message, tagger, tagged, name in reachable))
             else:
                 out.append(TagInfo(name, obj, False, "", None, None, name in reachable))
         return out
@@ -422,10 +519,33 @@ def _gist(stderr: str) -> str:
     return "; ".join(fatal or lines)
 
 
-def _offset(seconds_west: int) -> timezone:
-    from datetime import timedelta
+_TAGGER = re.compile(r"(.*) <([^<>]*)> (\d+) ([+-])(\d\d)(\d\d)$")
 
-    return timezone(timedelta(seconds=-seconds_west))
+
+def _parse_tag(raw: bytes, name: str) -> tuple[str, str | None, datetime | None, str]:
+    """(object it points at, tagger, tag date, message) of an annotated tag object's bytes (read as
+    gitpython reads them: headers, a blank line, the message with any signature)."""
+    lines = raw.decode("utf-8", "replace").splitlines()
+    target = lines[0].partition(" ")[2] if lines and lines[0].startswith("object ") else ""
+    tagger: str | None = None
+    tagged: datetime | None = None
+    headers = 0
+    for headers, line in enumerate(lines):
+        if not line:
+            break
+        if line.startswith("tagger "):
+            match = _TAGGER.match(line[len("tagger "):])
+            if match is None:
+                raise GitProblem(f"git cannot read the tag {name}: its tagger line is malformed")
+            tagger = f"{match.group(1)} <{match.group(2)}>"
+            sign = -1 if match.group(4) == "-" else 1
+            offset = timedelta(hours=int(match.group(5)), minutes=int(match.group(6)))
+            moment = datetime.fromtimestamp(int(match.group(3)), timezone.utc)
+            tagged = moment.astimezone(timezone(sign * offset)) if offset < timedelta(hours=24) else \
+                moment.replace(tzinfo=_ODD_UTC)
+    else:
+        headers = len(lines)
+    return target, tagger, tagged, "\n".join(lines[headers + 1:])
 
 
 def find_repository(path: Path) -> Repository | None:
@@ -438,6 +558,7 @@ def find_repository(path: Path) -> Repository | None:
         return None
     if repo.bare or repo.working_tree_dir is None:
         return None
+    _require_git()
     return Repository(repo)
 
 
@@ -452,6 +573,7 @@ def _configured(repo: git.Repo) -> Repository:
 
 def init_repository(path: Path) -> Repository:
     """``git init`` a new repository whose local config does not depend on the user's global one."""
+    _require_git()
     Path(path).mkdir(parents=True, exist_ok=True)
     repo = git.Repo.init(path, initial_branch="main") if _supports_initial_branch() else git.Repo.init(path)
     return _configured(repo)

@@ -16,9 +16,17 @@ order, layout and number spelling are never changes), and decides:
 - ``incomplete-history``: a shallow clone, or a first version already after the start;
 - ``date-order``: a commit dated before its parent;
 - ``future-date``: a commit dated later than now (its date proves nothing);
+- ``bad-timezone``: a commit whose recorded offset no time zone has (read as UTC);
 - ``history-unreadable``: a version git cannot read (a missing or corrupt object);
 - ``untracked``: no version of the spec in the history at all;
-- ``deleted``: the history ends with the spec's removal.
+- ``deleted``: the history ends with the spec's removal;
+- ``id-changed`` (error): a commit after the start changed a file's ``id`` together with a
+  locked field (the new id's history would otherwise start late and the old one end, two
+  warnings hiding one design change).
+
+A commit is judged against the earliest start in force: the start declared before it or
+any start its own versions declare, so moving the start earlier cannot make later edits
+look early; once data collection has started, the start itself is locked like any field.
 
 A merge commit is compared with every parent: a field whose merged value equals one
 parent's came from that parent's line of commits (already analysed there); a field whose
@@ -43,7 +51,7 @@ from pydantic import BaseModel
 
 from .canonical import locked_view
 from .checks import Finding
-from .git import Commit, LogEntry
+from .git import Commit, LogEntry, odd_offset
 from .model import Spec, locked_paths
 from .problems import InvalidSpec
 from .validation import validate_document
@@ -394,6 +402,10 @@ class Event:
     old_blob: str | None
     new_blob: str | None
     other_blobs: tuple[str | None, ...] = ()
+    #: The same file held another id before this commit (this spec is added): (that id, its blob).
+    id_from: tuple[str, str] | None = None
+    #: The same file holds another id after this commit (this spec is removed): (that id, its blob).
+    id_to: tuple[str, str] | None = None
 
     @property
     def merge(self) -> bool:
@@ -463,10 +475,10 @@ class SpecHistory:
 
 #: What each finding kind makes of a spec's history, most serious first (the first present wins).
 _VERDICTS: tuple[tuple[str, str], ...] = (
-    ("drift", "drift"), ("history-unreadable", "unreadable"), ("incomplete-history", "incomplete"),
+    ("drift", "drift"), ("id-changed", "drift"), ("history-unreadable", "unreadable"), ("incomplete-history", "incomplete"),
     ("rewritten-history", "rewritten"), ("deleted", "deleted"), ("untracked", "untracked"),
     ("disclosed-deviation", "deviation"), ("future-date", "unreliable-dates"), ("date-order", "unreliable-dates"),
-    ("amended", "amended"))
+    ("bad-timezone", "unreliable-dates"), ("amended", "amended"))
 
 
 def verdict_of(kinds: Iterable[str]) -> str:
@@ -499,6 +511,7 @@ def spec_events(log: Iterable[LogEntry], store: SnapshotStore,
         olds: dict[str, list[tuple[str, str]]] = {}
         news: dict[str, list[tuple[str, str]]] = {}
         others = {c.new_path or c.old_path: c.other_blobs for c in entry.changes if c.other_blobs}
+        commit_pairs: list[tuple[str, tuple[str, str] | None, tuple[str, str] | None]] = []
         for change in entry.changes:
             if change.old_path and change.old_blob:
                 snap = store.get(change.old_blob)
@@ -532,10 +545,19 @@ def spec_events(log: Iterable[LogEntry], store: SnapshotStore,
             for old, new in pairs:
                 if new:
                     path_ids[new[0]] = spec_id
-                path = new[0] if new else old[0] if old else None
-                events.setdefault(spec_id, []).append(Event(
-                    entry.commit, old[0] if old else None, new[0] if new else None,
-                    old[1] if old else None, new[1] if new else None, others.get(path, ())))
+                commit_pairs.append((spec_id, old, new))
+        removed = {old[0]: (spec_id, old[1]) for spec_id, old, new in commit_pairs if old and not new}
+        added = {new[0]: (spec_id, new[1]) for spec_id, old, new in commit_pairs if new and not old}
+        for spec_id, old, new in commit_pairs:
+            path = new[0] if new else old[0] if old else None
+            id_from = added_from = None
+            if new and not old and new[0] in removed:
+                id_from = removed[new[0]]
+            if old and not new and old[0] in added:
+                added_from = added[old[0]]
+            events.setdefault(spec_id, []).append(Event(
+                entry.commit, old[0] if old else None, new[0] if new else None,
+                old[1] if old else None, new[1] if new else None, others.get(path, ()), id_from, added_from))
     return events
 
 
@@ -556,6 +578,7 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
     history = SpecHistory(spec_id, shallow=shallow)
     previous: Snapshot | None = None
     started: date | None = None
+    declared: date | None = None  # the start in force before this commit
     reported: set[str] = set()  # unreadable blobs already named
     drifts: dict[tuple[int, str], Finding] = {}  # (revision index, field) -> its drift finding
     later: list[tuple[int, Commit, list[dict[str, Any]]]] = []  # amendments each later commit added
@@ -564,6 +587,7 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
             "untracked", "warning", "", None,
             "no version of this spec is in the git history: it has never been committed, so the history cannot "
             "vouch for its design; commit it (before data collection starts)"))
+    id_changed = False
     for index, event in enumerate(events):
         commit = event.commit
         old = store.get(event.old_blob) if event.old_blob else None
@@ -573,8 +597,17 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
         base = parents[0] if parents else previous
         start = next((s.start for s in (base, new) if s is not None and s.start is not None), None)
         day = commit_day(commit.committer_date)
-        if started is None and start is not None and day >= start:
-            started = start
+        if started is None:
+            # the earliest start in force: the one declared so far, or any this commit's versions declare
+            # (moving the start earlier never lets a commit after the new start pass as before it)
+            renamed = store.get(event.id_from[1]) if event.id_from else None
+            candidates = [s for s in (declared, *(p.start for p in parents), new.start if new else None,
+                                      renamed.start if renamed else None) if s is not None]
+            earliest = min(candidates) if candidates else None
+            if earliest is not None and day >= earliest:
+                started = earliest
+            elif new is not None and new.start is not None:
+                declared = new.start  # a start moved before it arrived (a postponement) is the start
         after = started is not None
         if not parents and new is not None:
             action = "added" if previous is None else "re-added"
@@ -608,7 +641,8 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
                 from .interim import looks_rewritten
 
                 history.findings += looks_rewritten(base, new, commit)
-        if index == 0 and action == "added" and after and not shallow:
+        id_changed = after and not unreadable and _id_change(history, event, old, new, store, extra_locked, started)
+        if index == 0 and action == "added" and after and not shallow and not id_changed:
             history.findings.append(Finding(
                 "incomplete-history", "warning", "data_collection.start", None,
                 f"the first version in git history is commit {commit.short} of {_short_date(commit.committer_date)}, "
@@ -616,6 +650,13 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
                 "history, so drift cannot be ruled out"))
         if commit_dates is not None:
             history.findings += _date_order(commit, commit_dates)
+        if odd_offset(commit.committer_date) or odd_offset(commit.author_date):
+            history.findings.append(Finding(
+                "bad-timezone", "warning", "", None,
+                f"commit {commit.short} records a time-zone offset of 24 hours or more, which no time zone has "
+                f"(git accepts up to 99:59); its dates were written by hand or by a broken tool and are read here "
+                f"as UTC ({_short_date(commit.committer_date)}), so they are no reliable evidence of when the change "
+                "was made"))
         if now is not None and commit.committer_date > now + FUTURE_TOLERANCE:
             history.findings.append(Finding(
                 "future-date", "warning", "", None,
@@ -633,7 +674,7 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
     history.started_on = started
     if drifts:
         _disclose(history, drifts, later)
-    if history.revisions and history.revisions[-1].action == "removed":
+    if history.revisions and history.revisions[-1].action == "removed" and not id_changed:
         gone = history.revisions[-1]
         history.findings.append(Finding(
             "deleted", "warning", "", None,
@@ -648,6 +689,32 @@ def analyze(spec_id: str, events: Sequence[Event], store: SnapshotStore, *,
             f"({_short_date(first.committer_date)}), so earlier changes cannot be seen and drift cannot be ruled "
             "out; fetch the full history (git fetch --unshallow) and check again"))
     return history
+
+
+def _id_change(history: SpecHistory, event: Event, old: Snapshot | None, new: Snapshot | None,
+               store: SnapshotStore, extra_locked: Sequence[str], started: date | None) -> bool:
+    """Add an ``id-changed`` error when ``event`` changed the file's id together with a locked field
+    (after the start); whether it did."""
+    other_id, other_blob = event.id_from or event.id_to or ("", "")
+    if not other_blob:
+        return False
+    other = store.get(other_blob)
+    before, after = (other, new) if event.id_from else (old, other)
+    if other.unreadable or before is None or after is None:
+        return False
+    changes = [c for c in _changes(before, after, extra_locked, True, free=False) if c.locked and not c.amended]
+    if not changes:
+        return False
+    old_id, new_id = (other_id, history.id) if event.id_from else (history.id, other_id)
+    commit = event.commit
+    what = "; ".join(f"{c.field} {show_change(c.old, c.new)}" for c in changes[:5])
+    history.findings.append(Finding(
+        "id-changed", "error", "id", None,
+        f"commit {commit.short} on {_short_date(commit.committer_date)} by {commit.author} changed the id in "
+        f"{event.new_path or event.old_path} from {old_id!r} to {new_id!r} and, after data collection started "
+        f"({started}), locked fields: {what}; a new id does not make a new experiment, so this is a design change "
+        "after the start. Restore the id, or keep it and record the change under 'amendments'"))
+    return True
 
 
 def _unreadable_finding(snap: Snapshot, event: Event) -> Finding:

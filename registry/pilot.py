@@ -27,6 +27,9 @@ import csv
 import hashlib
 import io
 import math
+import os
+import re
+import stat
 import statistics
 from dataclasses import dataclass
 from pathlib import Path
@@ -34,7 +37,7 @@ from pathlib import Path
 from scipy.special import chdtri
 
 __all__ = ["PilotSummary", "InvalidPilot", "PilotMissing", "read_column", "summarize", "read_pilot",
-           "sd_upper_limit", "file_sha256", "MISSING_MARKERS", "MAX_PILOT_BYTES"]
+           "sd_upper_limit", "file_sha256", "MISSING_MARKERS", "MAX_PILOT_BYTES", "pilot_root"]
 
 #: Cells that mean "no value" and are skipped (counted in ``PilotSummary.missing``).
 MISSING_MARKERS = frozenset({"", "na", "n/a", "nan", "."})
@@ -94,8 +97,15 @@ def summarize(values: list[float], confidence: float = 0.8, **source: object) ->
     """Size, mean, sample SD (n - 1 denominator) and the SD's upper limit of ``values``."""
     if len(values) < 2:
         raise InvalidPilot(f"an SD needs at least 2 values; got {len(values)}")
-    sd = statistics.stdev(values)
-    return PilotSummary(n=len(values), mean=statistics.fmean(values), sd=sd,
+    try:
+        sd = statistics.stdev(values)
+        mean = statistics.fmean(values)
+    except OverflowError:
+        sd = mean = math.inf
+    if not (math.isfinite(sd) and math.isfinite(mean)):
+        raise InvalidPilot(f"{source.get('file') or '<pilot>'}: column {source.get('column')!r}: the values are too "
+                           "large to summarise (their mean or SD overflows a floating-point number); check the units")
+    return PilotSummary(n=len(values), mean=mean, sd=sd,
                         sd_upper=sd_upper_limit(sd, len(values), confidence), confidence=confidence,
                         **source)  # type: ignore[arg-type]
 
@@ -105,18 +115,82 @@ def file_sha256(path: str | Path) -> str:
     return hashlib.sha256(_read_bytes(Path(path), str(path))).hexdigest()
 
 
-def _read_bytes(path: Path, shown: str) -> bytes:
+#: A header name shown in messages only when it looks like a column name (a header line may hold secrets).
+_SAFE_NAME = re.compile(r"[A-Za-z0-9_][A-Za-z0-9_ .()%/+-]{0,39}")
+#: Files already read in this process, by identity (device, inode, size, modification and change time).
+_READ: dict[tuple[int, ...], tuple[bytes, str]] = {}
+_READ_LIMIT = 64
+
+
+def _confine(path: Path, root: Path, shown: str) -> Path:
+    """``path`` with symbolic links and ``..`` resolved, refused unless it lies inside ``root``."""
     try:
-        with open(path, "rb") as handle:
-            raw = handle.read(MAX_PILOT_BYTES + 1)
+        real = path.resolve(strict=True)
+    except FileNotFoundError:
+        raise PilotMissing(f"{shown}: pilot data file not found") from None
+    except (OSError, RuntimeError) as exc:
+        raise PilotMissing(f"{shown}: cannot be read: {getattr(exc, 'strerror', None) or exc}") from None
+    try:
+        real.relative_to(root.resolve())
+    except ValueError:
+        raise InvalidPilot(f"{shown}: lies outside the registry ({_display_root(root)}); a pilot file must be a file "
+                           "inside the registry, so a spec cannot make prespec read other files") from None
+    return real
+
+
+def pilot_root(registry: Path) -> Path:
+    """The folder a spec's pilot file must lie in: the git working tree holding the registry folder
+    ``registry`` (the nearest folder at or above it with a ``.git``), else ``registry`` itself."""
+    folder = registry.resolve()
+    for candidate in (folder, *folder.parents):
+        if (candidate / ".git").exists():
+            return candidate
+    return folder
+
+
+def _display_root(root: Path) -> str:
+    text = str(root)
+    return text if text.isprintable() else "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
+
+
+def _read_bytes(path: Path, shown: str, root: Path | None = None) -> bytes:
+    """The file's bytes: a regular file only (opened without blocking, so a FIFO cannot hang the run),
+    inside ``root`` when given, each file read once per process while it is unchanged."""
+    if root is not None:
+        path = _confine(path, root, shown)
+    flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_NOCTTY", 0)
+    try:
+        fd = os.open(path, flags)
     except FileNotFoundError:
         raise PilotMissing(f"{shown}: pilot data file not found") from None
     except IsADirectoryError:
         raise InvalidPilot(f"{shown}: is a folder, not a CSV file") from None
     except OSError as exc:
         raise PilotMissing(f"{shown}: cannot be read: {exc.strerror or exc}") from None
+    try:
+        info = os.fstat(fd)
+        if stat.S_ISDIR(info.st_mode):
+            raise InvalidPilot(f"{shown}: is a folder, not a CSV file")
+        if not stat.S_ISREG(info.st_mode):
+            raise InvalidPilot(f"{shown}: is not a regular file (a FIFO, device or socket); a pilot file must be "
+                               "a CSV file")
+        if info.st_size > MAX_PILOT_BYTES:
+            raise InvalidPilot(f"{shown}: larger than {MAX_PILOT_BYTES:,} bytes; a pilot file is a table of values")
+        key = (info.st_dev, info.st_ino, info.st_size, info.st_mtime_ns, info.st_ctime_ns)
+        if key in _READ:
+            return _READ[key][0]
+        os.set_blocking(fd, True)
+        with os.fdopen(fd, "rb", closefd=False) as handle:
+            raw = handle.read(MAX_PILOT_BYTES + 1)
+    except OSError as exc:
+        raise PilotMissing(f"{shown}: cannot be read: {exc.strerror or exc}") from None
+    finally:
+        os.close(fd)
     if len(raw) > MAX_PILOT_BYTES:
         raise InvalidPilot(f"{shown}: larger than {MAX_PILOT_BYTES:,} bytes; a pilot file is a table of values")
+    if len(_READ) >= _READ_LIMIT:
+        _READ.clear()
+    _READ[key] = (raw, hashlib.sha256(raw).hexdigest())
     return raw
 
 
@@ -129,12 +203,27 @@ def _decode(raw: bytes, shown: str) -> str:
                            "save the file as UTF-8 CSV") from None
 
 
-def _dialect(text: str) -> type[csv.Dialect] | csv.Dialect:
-    sample = text[:20_000]
-    try:
-        return csv.Sniffer().sniff(sample, delimiters=",;\t")
-    except csv.Error:
-        return csv.excel
+class _Delimited(csv.excel):
+    delimiter = ","
+
+
+def _dialect(text: str) -> type[csv.Dialect]:
+    """The delimiter (comma, semicolon or tab) that splits the first lines into the most equal rows of two
+    or more fields; a comma when none does. Linear in the sample (a general sniffer can take seconds on
+    a hostile file)."""
+    lines = [line for line in text[:20_000].splitlines()[:50] if line.strip()]
+    best, best_score = ",", 0
+    for delimiter in ",;\t":
+        try:
+            widths = [len(row) for row in csv.reader(lines, delimiter=delimiter)]
+        except csv.Error:
+            continue
+        if not widths or widths[0] < 2:
+            continue
+        score = sum(width == widths[0] for width in widths)
+        if score > best_score:
+            best, best_score = delimiter, score
+    return type("_Sniffed", (_Delimited,), {"delimiter": best})
 
 
 def read_column(text: str, column: str, shown: str = "<pilot>") -> tuple[list[float], int]:
@@ -151,7 +240,11 @@ def read_column(text: str, column: str, shown: str = "<pilot>") -> tuple[list[fl
         raise InvalidPilot(f"{shown}:1: not readable as CSV: {exc}") from None
     names = [name.strip() for name in header]
     if column not in names:
-        shown_names = ", ".join(repr(name) for name in names if name) or "none"
+        safe = [name for name in names if _SAFE_NAME.fullmatch(name)]
+        hidden = sum(1 for name in names if name) - len(safe)
+        shown_names = ", ".join(repr(name) for name in safe) or "none"
+        if hidden:
+            shown_names += f" and {hidden} name{'s' if hidden != 1 else ''} not shown (not a plain column name)"
         raise InvalidPilot(f"{shown}:1: no column {column!r}; the header has {shown_names}")
     index = names.index(column)
     values: list[float] = []
@@ -181,17 +274,21 @@ def _number(cell: str, shown: str, line: int, column: str) -> float:
         hint = ""
         if "," in cell and cell.replace(",", "", 1).replace("-", "", 1).isdigit():
             hint = "; write decimals with a point (3.5, not 3,5)"
-        raise InvalidPilot(f"{shown}:{line}: column {column!r}: {cell!r} is not a number{hint} "
-                           f"(blank cells and NA count as missing)") from None
+        raise InvalidPilot(f"{shown}:{line}: column {column!r}: the cell ({len(cell)} characters, not shown) is "
+                           f"not a number{hint} (blank cells and NA count as missing)") from None
     if not math.isfinite(value):
-        raise InvalidPilot(f"{shown}:{line}: column {column!r}: {cell!r} is not a finite number")
+        raise InvalidPilot(f"{shown}:{line}: column {column!r}: {cell!r} is not a finite number")  # number-shaped
     return value
 
 
-def read_pilot(path: str | Path, column: str, confidence: float = 0.8, shown: str | None = None) -> PilotSummary:
-    """Read ``column`` of the CSV file at ``path`` and summarise it, with the file's SHA-256."""
+def read_pilot(path: str | Path, column: str, confidence: float = 0.8, shown: str | None = None,
+               root: Path | None = None) -> PilotSummary:
+    """Read ``column`` of the CSV file at ``path`` and summarise it, with the file's SHA-256.
+
+    With ``root``, the file (symbolic links and ``..`` resolved) must lie inside that folder.
+    """
     shown = shown or str(path)
-    raw = _read_bytes(Path(path), shown)
+    raw = _read_bytes(Path(path), shown, root)
     values, missing = read_column(_decode(raw, shown), column, shown)
     return summarize(values, confidence, missing=missing, file=shown, column=column,
                      sha256=hashlib.sha256(raw).hexdigest())

@@ -10,7 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-__all__ = ["Problem", "InvalidSpec", "NO_VALUE", "format_problem", "printable"]
+__all__ = ["Problem", "InvalidSpec", "NO_VALUE", "format_problem", "printable", "plain_text"]
 
 
 class _NoValue:
@@ -46,6 +46,21 @@ def printable(text: str, limit: int = 160) -> str:
     if not text.isprintable():
         text = "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
     return text if len(text) <= limit else text[: limit - 3] + "..."
+
+
+def plain_text(value: object) -> str:
+    r"""User text (a spec value, a path, an author name, a git message) made safe for a terminal: every
+    control or format character (ESC, BEL, DEL, C1 codes, bidirectional overrides) escaped visibly, as
+    :func:`printable` does for source lines; line breaks kept. Print it as plain text, never as markup.
+
+    >>> print(plain_text("name\x1b]8;;https://x.example\x07 [/]"))
+    name\x1b]8;;https://x.example\x07 [/]
+    """
+    text = str(value)
+    if text.isprintable():
+        return text
+    return "\n".join("".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in line)
+                     for line in text.split("\n"))
 
 
 def format_problem(problem: Problem, path: str, source_lines: list[str] | None = None) -> str:

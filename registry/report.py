@@ -13,21 +13,27 @@ from rich.table import Table
 from rich.text import Text
 
 from .checks import CAUTION, SpecReport
-from .problems import printable
+from .problems import plain_text, printable
 
-__all__ = ["console", "print_table", "print_findings", "to_json", "VERDICT_STYLES"]
+__all__ = ["console", "plain", "print_table", "print_findings", "to_json", "VERDICT_STYLES"]
 
 VERDICT_STYLES = {"ok": "green", "oversized": "yellow", "underpowered": "bold red", "invalid": "bold red"}
 _SEVERITY_STYLES = {"error": "red", "warning": "yellow", "info": "cyan"}
 
 
 def console(file: IO[str] | None = None) -> Console:
-    """A console that uses colour only on a terminal and never when NO_COLOR is set."""
+    """A console that uses colour only on a terminal and never when NO_COLOR is set, and reads no
+    markup in what it prints (user text such as ``[/]`` or ``[link=...]`` stays text)."""
     stream = file or sys.stdout
     tty = bool(getattr(stream, "isatty", lambda: False)())
     plain = bool(os.environ.get("NO_COLOR")) or not tty
     return Console(file=stream, color_system=None if plain else "auto", no_color=plain, highlight=False,
-                   emoji=False, width=None if tty else 120)
+                   emoji=False, markup=False, width=None if tty else 120)
+
+
+def plain(value: object) -> Text:
+    """User text as a rich :class:`Text`: never read as markup, control characters escaped."""
+    return Text(plain_text(value))
 
 
 def _n(value: int | None) -> str:
@@ -49,7 +55,7 @@ def print_table(out: Console, reports: list[SpecReport]) -> None:
         target = "-" if spec is None else f"{spec.design.power:g}"
         verdict = report.verdict
         table.add_row(
-            Text(report.id or report.path),  # Text: a file name is never read as markup
+            plain(report.id or report.path),  # a file name is never read as markup
             spec.design.test if spec else "-",
             _n(report.planned_per_group),
             _n(report.required_per_group),
@@ -66,7 +72,7 @@ def print_findings(out: Console, reports: list[SpecReport], *, show_info: bool =
         if not shown:
             continue
         out.print()
-        out.print(Text(f"{report.path}" + (f"  ({report.id})" if report.id else ""), style="bold"))
+        out.print(Text(plain_text(f"{report.path}" + (f"  ({report.id})" if report.id else "")), style="bold"))
         lines = report.document.source_lines if report.document else report.source_lines
         for finding in shown:
             where = f"{report.path}:{finding.line}" if finding.line else report.path
@@ -74,11 +80,11 @@ def print_findings(out: Console, reports: list[SpecReport], *, show_info: bool =
                 where += f":{finding.column}"
             head = Text("  ")
             head.append(f"{finding.severity} {finding.kind}", style=_SEVERITY_STYLES[finding.severity])
-            head.append(f"  {where}")
+            head.append(plain_text(f"  {where}"))
             if finding.field:
-                head.append(f"  {finding.field}", style="bold")
+                head.append(plain_text(f"  {finding.field}"), style="bold")
             out.print(head)
-            out.print(Padding(Text(finding.message), (0, 0, 0, 4), expand=False))
+            out.print(Padding(plain(finding.message), (0, 0, 0, 4), expand=False))
             if finding.kind == "invalid" and finding.line and 1 <= finding.line <= len(lines):
                 source = printable(lines[finding.line - 1])
                 out.print(Text(f"    {finding.line:>4} | {source}", style="dim"))

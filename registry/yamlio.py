@@ -321,12 +321,12 @@ def _looks_utf16(raw: bytes) -> bool:
     sample = raw[:4096]
     if len(sample) < 4:
         return False
-    for step in (2, 4):
-        for offset in range(step):
-            lane = sample[offset::step]
-            others = bytes(b for i, b in enumerate(sample) if i % step != offset)
-            if lane.count(0) > 0.9 * len(lane) and others.count(0) < 0.5 * len(others):
-                return True
+    for step in (2, 4):  # UTF-16: one lane of zeros beside one of text; UTF-32: three beside one
+        lanes = [sample[offset::step] for offset in range(step)]
+        zero = [lane.count(0) > 0.9 * len(lane) for lane in lanes]
+        text = [lane for lane, is_zero in zip(lanes, zero) if not is_zero]
+        if sum(zero) == step - 1 and len(text) == 1 and text[0].count(0) < 0.5 * len(text[0]):
+            return True
     return False
 
 

@@ -74,7 +74,8 @@ def test_sha256_is_of_the_file_bytes(tmp_path):
 
 @pytest.mark.parametrize("text, column, message", [
     ("id,weight\n1,4.0\n2,5.0\n", "mass", "pilot.csv:1: no column 'mass'; the header has 'id', 'weight'"),
-    ("id,weight\n1,4.0\n2,heavy\n3,5.0\n", "weight", "pilot.csv:3: column 'weight': 'heavy' is not a number"),
+    ("id,weight\n1,4.0\n2,heavy\n3,5.0\n", "weight",
+     "pilot.csv:3: column 'weight': the cell (5 characters, not shown) is not a number"),
     ("id;weight\n1;4,5\n2;5,0\n", "weight", "write decimals with a point"),
     ("id,weight\n1,4.0\n", "weight", "column 'weight' has 1 numeric value; an SD needs at least 2"),
     ("", "weight", "the file is empty"),

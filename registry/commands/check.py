@@ -8,6 +8,7 @@ import sys
 from typing import TYPE_CHECKING
 
 from ..discovery import UsageError, discover
+from ..problems import plain_text
 
 if TYPE_CHECKING:
     from ..checks import SpecReport
@@ -66,17 +67,17 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
         return 1 if failed else 0
     out = console()
     for error in config_errors:
-        print(error, file=sys.stderr)
+        print(plain_text(error), file=sys.stderr)
     if not reports:
-        out.print(f"No spec files (*.yaml, *.yml) found under {', '.join(paths)}.")
+        out.print(plain_text(f"No spec files (*.yaml, *.yml) found under {', '.join(paths)}."))
         return 0
     print_table(out, reports)
     print_findings(out, reports)
     out.print()
     out.print(summary_line(reports))
     for problem in status.problems if status else ():
-        out.print(f"History problem: {problem}")
+        out.print(plain_text(f"History problem: {problem}"))
     if status is not None and status.message():
-        out.print(status.message())
+        out.print(plain_text(status.message()))
     out.print(f"Note: {CAUTION}")
     return 1 if failed else 0

@@ -14,6 +14,7 @@ from pathlib import Path
 
 from ..discovery import UsageError
 from ..fsutil import move_within, write_atomic
+from ..problems import plain_text
 from ..registration import format_message, tag_name
 
 __all__ = ["demo", "build_demo", "HELP", "add_arguments", "run", "EXAMPLES"]
@@ -147,7 +148,8 @@ def demo(folder: str | None) -> int:
         registry = build_demo(target)
     except GitProblem as error:
         raise UsageError(f"demo: {error}") from None
-    print(f"Demo registry (a git repository with invented, dated history): {target}")
-    print(f"Try: prespec history exercise-blood-pressure {registry}   |   prespec verify fibre-butyrate {registry}")
+    print(plain_text(f"Demo registry (a git repository with invented, dated history): {target}"))
+    print(plain_text(f"Try: prespec history exercise-blood-pressure {registry}   |   "
+                     f"prespec verify fibre-butyrate {registry}"))
     print()
     return check([str(registry)])

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
+from ..problems import plain_text
 
 __all__ = ["hash", "HELP", "add_arguments", "run"]
 
@@ -27,12 +28,13 @@ def hash(target: str, paths: list[str], *, canonical: bool = False) -> int:  # n
 
     _, report = find_spec(target, paths)
     if report.spec is None:
-        print(f"{report.path}: not a valid spec, so it has no canonical content:", file=sys.stderr)
+        print(plain_text(f"{report.path}: not a valid spec, so it has no canonical content:"), file=sys.stderr)
         for finding in report.findings:
             where = f"{report.path}:{finding.line}" if finding.line else report.path
-            print(f"  {where}: {finding.field + ': ' if finding.field else ''}{finding.message}", file=sys.stderr)
+            print(plain_text(f"  {where}: {finding.field + ': ' if finding.field else ''}{finding.message}"),
+                  file=sys.stderr)
         return 1
     if canonical:
         print(canonical_json(report.spec))
-    print(f"{content_hash(report.spec)}  {report.spec.id}  {report.path}")
+    print(plain_text(f"{content_hash(report.spec)}  {report.spec.id}  {report.path}"))
     return 0

@@ -11,6 +11,7 @@ from typing import TYPE_CHECKING
 
 from ..discovery import UsageError
 from ..problems import InvalidSpec
+from ..problems import plain_text
 
 if TYPE_CHECKING:
     from ..history import SpecHistory
@@ -72,8 +73,8 @@ def history(target: str, paths: list[str], *, as_json: bool = False) -> int:
         spec_history = audit_spec_history(registry, spec_id, _locked_extra(spec_file) if spec_file else [],
                                           detail=True, tags=[r.tag for r in tags])
     except GitProblem as error:
-        print(f"prespec history: the git history of {repo.root} cannot be read: {error}", file=sys.stderr)
-        print(f"Verdict: unreadable (run 'git fsck' in {repo.root})", file=sys.stderr)
+        print(plain_text(f"prespec history: the git history of {repo.root} cannot be read: {error}"), file=sys.stderr)
+        print(plain_text(f"Verdict: unreadable (run 'git fsck' in {repo.root})"), file=sys.stderr)
         return 1
     if spec_file is None and not spec_history.revisions:
         raise UsageError(f"no spec with id {target!r} under {', '.join(paths)} and none in the git history of "
@@ -96,7 +97,7 @@ def _print(spec_history: SpecHistory, tags: list[str]) -> None:
     from rich.text import Text
 
     from ..history import commit_day, show_change
-    from ..report import console
+    from ..report import console, plain
 
     out = console()
     table = Table(show_edge=False, header_style="bold", pad_edge=False)
@@ -105,12 +106,12 @@ def _print(spec_history: SpecHistory, tags: list[str]) -> None:
     for revision in spec_history.revisions:
         commit = revision.commit
         when = "after start" if revision.after_start else "before start"
-        common = (commit_day(commit.committer_date).isoformat(), commit.short, commit.author_name)
+        common = (commit_day(commit.committer_date).isoformat(), commit.short, plain(commit.author_name))
         locked = [c for c in revision.changes]
         if not locked:
             detail = revision.action + (f" ({revision.old_path} -> {revision.path})"
                                         if revision.action == "moved" else f" ({revision.path or revision.old_path})")
-            table.add_row(*common, "-", detail, when, "")
+            table.add_row(*common, "-", plain(detail), when, "")
             continue
         for change in locked:
             if not change.locked:
@@ -121,13 +122,13 @@ def _print(spec_history: SpecHistory, tags: list[str]) -> None:
                 status = Text("amended", style="cyan")
             else:
                 status = Text("DRIFT", style="bold red")
-            table.add_row(*common, change.field, show_change(change.old, change.new), when, status)
-    out.print(f"History of {spec_history.id} (data collection starts {spec_history.start or 'unknown'}; "
-              f"{len(spec_history.revisions)} commit(s)):")
+            table.add_row(*common, plain(change.field), plain(show_change(change.old, change.new)), when, status)
+    out.print(plain(f"History of {spec_history.id} (data collection starts {spec_history.start or 'unknown'}; "
+                    f"{len(spec_history.revisions)} commit(s)):"))
     out.print(table)
     for finding in spec_history.findings:
         if finding.kind != "amended":
-            out.print(Text(f"{finding.severity} {finding.kind}: {finding.message}"))
+            out.print(plain(f"{finding.severity} {finding.kind}: {finding.message}"))
     if tags:
-        out.print("Registration tags: " + ", ".join(tags))
+        out.print(plain("Registration tags: " + ", ".join(tags)))
     out.print(f"Verdict: {spec_history.verdict}")

@@ -10,6 +10,7 @@ from pathlib import Path
 
 from ..discovery import UsageError
 from ..fsutil import WriteRefused, confined, write_atomic
+from ..problems import plain_text
 
 __all__ = ["new", "template", "HELP", "add_arguments", "run"]
 
@@ -119,7 +120,8 @@ def new(spec_id: str, *, folder: str = ".", test: str = "two-sample-t", title: s
                      overwrite=False)
     except WriteRefused as error:
         raise UsageError(str(error)) from None
-    print(f"wrote {target}: fill in the assumptions, then run 'prespec check {target}'")
+    print(plain_text(f"wrote {target}: fill in the assumptions, then run 'prespec check {target}'"))
     if schema_ref == SCHEMA_ID:
-        print(f"hint: run 'prespec schema --out {target_folder / SCHEMA_ID}' so editors can validate the spec")
+        print(plain_text(f"hint: run 'prespec schema --out {target_folder / SCHEMA_ID}' so editors can validate "
+                         "the spec"))
     return 0

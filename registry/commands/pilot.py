@@ -61,7 +61,7 @@ def pilot(file: str, column: str, *, confidence: float = 0.8, as_json: bool = Fa
 
 def _print_human(s: PilotSummary) -> None:
     from ..checks import CAUTION
-    from ..report import console
+    from ..report import console, plain
 
     out = console()
     level = f"{s.confidence:.0%}"
@@ -73,7 +73,7 @@ def _print_human(s: PilotSummary) -> None:
         ("upper limit", f"{s.sd_upper:.6g} (one-sided {level} confidence limit of the SD; Browne 1995)"),
         ("SHA-256", str(s.sha256)),
     ]
-    out.print(f"Pilot data: {s.file}, column {s.column!r}")
+    out.print(plain(f"Pilot data: {s.file}, column {s.column!r}"))
     for label, text in rows:
         out.print(f"  {label:<11}  {text}", soft_wrap=True)
     out.print()

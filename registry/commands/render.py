@@ -12,6 +12,7 @@ from typing import TYPE_CHECKING
 
 from ..discovery import UsageError, discover
 from ..fsutil import WriteRefused, confined, write_atomic
+from ..problems import plain_text
 
 if TYPE_CHECKING:
     from datetime import datetime
@@ -63,15 +64,23 @@ def _why_not(report: SpecReport) -> str:
 
 
 def _own(path: Path) -> bool:
+    """Whether ``path`` is a regular file prespec wrote: its marker begins the first line (Markdown) or
+    one of the first lines (HTML, SVG). Opened without blocking and only when it is a regular file."""
+    import stat
+
     marker = _own_markers().get(path.suffix)
     if marker is None:
         return False
     try:
-        with path.open(encoding="utf-8", errors="replace") as handle:
-            head = handle.read(4096)
+        if not stat.S_ISREG(os.lstat(path).st_mode):
+            return False
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_NOFOLLOW", 0))
+        with os.fdopen(fd, "rb") as handle:
+            head = handle.read(4096).decode("utf-8", "replace").splitlines()
     except OSError:
         return False
-    return marker in head
+    lines = head[:1] if path.suffix == ".md" else head[:12]
+    return any(line.lstrip().startswith(marker) for line in lines)
 
 
 def _targets(out: Path, names: list[str]) -> list[Path]:
@@ -84,6 +93,9 @@ def _targets(out: Path, names: list[str]) -> list[Path]:
                                "write through it, since it may lead outside the output folder")
         if target.is_dir():
             raise WriteRefused(f"{target} is a folder; prespec writes a file of that name")
+        if target.exists() and not target.is_file():
+            raise WriteRefused(f"{target} is not a regular file (a FIFO, device or socket); prespec will not open "
+                               "or replace it")
         if target.exists() and not _own(target):
             raise WriteRefused(f"{target} exists and was not written by prespec render; "
                                "move it away or choose another --out folder")
@@ -162,7 +174,7 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     if history:
         add_history(reports, spec_files, registry, config_for)
     for error in config_errors:
-        print(error, file=sys.stderr)
+        print(plain_text(error), file=sys.stderr)
     if spec_id is not None:
         chosen = [r for r in reports if r.id == spec_id]
         if not chosen:
@@ -184,7 +196,7 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     summaries = iter(_summaries(jobs, rendered_at, all_specs))
     for report in reports:
         if not _renderable(report):
-            print(_why_not(report), file=sys.stderr)
+            print(plain_text(_why_not(report)), file=sys.stderr)
             rows.append(IndexRow(report, None))
             failed = True
             continue
@@ -197,11 +209,11 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     try:
         written = _write(folder, files)
     except (WriteRefused, OSError) as error:
-        print(f"prespec: error: {error}", file=sys.stderr)
+        print(plain_text(f"prespec: error: {error}"), file=sys.stderr)
         return 1
     pages = [p for p in written if p.suffix == ".html"]
     for path in pages:
-        print(f"wrote {path}")
-    print(f"{len(written)} file{'s' if len(written) != 1 else ''} written to {folder}.")
+        print(plain_text(f"wrote {path}"))
+    print(plain_text(f"{len(written)} file{'s' if len(written) != 1 else ''} written to {folder}."))
     print(f"Note: {CAUTION}")
     return 1 if failed or config_errors else 0

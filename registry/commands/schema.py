@@ -6,7 +6,7 @@ import argparse
 from pathlib import Path
 
 from ..discovery import UsageError
-from ..fsutil import write_atomic
+from ..fsutil import WriteRefused, write_atomic
 
 __all__ = ["schema", "HELP", "add_arguments", "run"]
 
@@ -33,7 +33,10 @@ def schema(out: str, *, docs: str | None = None) -> int:
     if out == "-":
         print(text, end="")
     else:
-        path = write_atomic(Path(out), text)
+        try:
+            path = write_atomic(Path(out), text)
+        except WriteRefused as error:
+            raise UsageError(str(error)) from None
         print(f"wrote {path}")
     if docs:
         docs_path = Path(docs)

@@ -43,7 +43,7 @@ _EFFECT_OPTIONS: tuple[tuple[str, str, str, str], ...] = (
 )
 _DESIGN_LABELS = {"alpha", "power", "alternative", "allocation_ratio", "attrition", "test", "effect", "simulation",
                   "pilot", "effect_rationale", "variability_source", "sequential", "assurance"}
-_INT_RE = re.compile(r"^[-+]?\d+$")
+_INT_RE = re.compile(r"^[-+]?[0-9]+$")  # ASCII digits only: int() would also read other scripts' digits
 
 
 def _number(text: str) -> float:
@@ -69,6 +69,15 @@ def _whole(text: str) -> int:
     if not _INT_RE.match(text.strip()):
         raise argparse.ArgumentTypeError(f"must be a whole number; got {text!r}")
     return int(text)
+
+
+def _per_group(text: str) -> int:
+    from ..power.base import MAX_N
+
+    value = _whole(text)
+    if not 1 <= value <= MAX_N:
+        raise argparse.ArgumentTypeError(f"must be a whole number from 1 to {MAX_N:,} per group; got {text!r}")
+    return value
 
 
 def _scalar(text: str) -> Any:
@@ -121,7 +130,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="direction of the alternative (default two-sided)")
     design.add_argument("--ratio", type=_number, default=None, metavar="N2_OVER_N1",
                         help="two-group designs: n2 / n1 (default 1)")
-    design.add_argument("--n", type=_whole, default=None, metavar="N",
+    design.add_argument("--n", type=_per_group, default=None, metavar="N",
                         help="report the power at N analysable units per group and the smallest detectable "
                         "effect there, instead of the sample size")
     seq = parser.add_argument_group("interim looks and assurance (design.sequential, design.assurance)")

@@ -510,7 +510,7 @@ def _provenance(prov: Provenance) -> str:
         committed = iso_utc(prov.committed) if prov.committed else "-"
         copy = ("has uncommitted changes: this summary shows the working copy, not the commit above"
                 if prov.modified else "identical to the commit above")
-    tags = ", ".join(f"{md.code(name)} at {md.code(sha[:12])}" for name, sha in prov.freeze_tags) or "not registered"
+    tags = ", ".join(f"{md.code(name)} at {md.code(sha[:12])}" for name, sha in prov.registration_tags) or "not registered"
     rows = [
         ("Spec file", md.cell(prov.spec_path)),
         ("Last commit of the file", commit),
@@ -521,10 +521,10 @@ def _provenance(prov: Provenance) -> str:
         ("Registration tag", tags),
         ("Rendered at (UTC)", iso_utc(prov.rendered_at)),
         ("Rendered by", f"prespec {md.cell(prov.tool_version)}"),
-        ("Verify with", md.code(prov.verify_command) if prov.freeze_tags else
+        ("Verify with", md.code(prov.verify_command) if prov.registration_tags else
          "not registered: there is no registration to verify"),
     ]
-    if not prov.freeze_tags:
+    if not prov.registration_tags:
         register = prov.verify_command.replace("prespec verify", "prespec register", 1)
         return (md.table(["Record", "Value"], rows) + "\n\n"
                 "This spec is not registered: no registration tag records it, so nothing shows that this design "

@@ -77,7 +77,18 @@ def bullets(items: Iterable[str]) -> str:
 
 
 def code(text: str) -> str:
-    """An inline code span for text we produced ourselves (ids, hashes, commands); never user prose."""
-    if "`" in text or "\n" in text:
-        raise ValueError(f"code spans are for simple text; got {text!r}")
-    return f"`{text}`"
+    """An inline code span for text we produced ourselves (ids, hashes, commands); never user prose.
+
+    A backtick inside gets a longer fence (CommonMark code spans), so a command naming a folder
+    with backticks stays one span.
+
+    >>> code("a `b` c")
+    '`` a `b` c ``'
+    """
+    if "\n" in text:
+        raise ValueError(f"code spans are one line; got {text!r}")
+    runs = re.findall(r"`+", text)
+    if not runs:
+        return f"`{text}`"
+    fence = "`" * (max(len(run) for run in runs) + 1)
+    return f"{fence} {text} {fence}"

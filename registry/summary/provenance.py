@@ -1,4 +1,4 @@
-"""Where a rendered summary came from: the spec's file, commit, content hash, freeze tags and render time."""
+"""Where a rendered summary came from: the spec's file, commit, content hash, registration tags and render time."""
 
 from __future__ import annotations
 
@@ -25,7 +25,7 @@ class Provenance:
     modified: bool
     data_collection_start: date
     content_sha256: str
-    freeze_tags: tuple[tuple[str, str], ...]
+    registration_tags: tuple[tuple[str, str], ...]
     rendered_at: datetime
     tool_version: str
     verify_command: str
@@ -61,7 +61,7 @@ def provenance(report: SpecReport, path: Path, rendered_at: datetime) -> Provena
     tags: tuple[tuple[str, str], ...] = ()
     if repo is not None and relative is not None:
         try:
-            modified = relative in repo.dirty_paths() or not repo.is_tracked(relative)
+            modified = not repo.matches_head(relative, path)  # blobs compared: no index, no repository programs
             tags = tuple((r.tag.name, r.tag.commit) for r in registrations(repo, spec.id))
         except GitProblem:
             modified = True  # cannot tell: never claim the summary matches a commit
@@ -72,7 +72,7 @@ def provenance(report: SpecReport, path: Path, rendered_at: datetime) -> Provena
         modified=modified,
         data_collection_start=spec.data_collection.start,
         content_sha256=content_hash(spec),
-        freeze_tags=tags,
+        registration_tags=tags,
         rendered_at=rendered_at,
         tool_version=__version__,
         verify_command=_verify_command(spec.id, relative),
@@ -82,4 +82,22 @@ def provenance(report: SpecReport, path: Path, rendered_at: datetime) -> Provena
 def _verify_command(spec_id: str, relative: str | None) -> str:
     """What a reviewer runs from the root of a clone of the registry's repository."""
     folder = Path(relative).parent.as_posix() if relative else "."
-    return f"prespec verify {spec_id}" if folder == "." else f"prespec verify {spec_id} {folder}"
+    return f"prespec verify {spec_id}" if folder == "." else f"prespec verify {spec_id} {_shell_word(folder)}"
+
+
+def _shell_word(text: str) -> str:
+    """``text`` as one POSIX shell word (spaces, backticks, ``$(...)`` stay literal); a name with control
+    characters in ``$'...'`` form, which bash and zsh read.
+
+    >>> _shell_word("my data/$(id)")
+    "'my data/$(id)'"
+    >>> print(_shell_word("a" + chr(10) + "b"))
+    $'a\\x0ab'
+    """
+    import shlex
+
+    if text.isprintable():
+        return shlex.quote(text)
+    body = "".join("\\" + ch if ch in "'\\" else ch if ch.isprintable() else
+                   f"\\x{ord(ch):02x}" if ord(ch) < 256 else f"\\u{ord(ch) & 0xFFFF:04x}" for ch in text)
+    return f"$'{body}'"
