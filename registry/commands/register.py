@@ -12,7 +12,7 @@ from typing import TYPE_CHECKING, Any
 
 from .. import __version__
 from ..discovery import UsageError
-from ..problems import InvalidSpec
+from ..problems import InvalidSpec, plain_text
 from ..registration import format_message, tag_name
 
 if TYPE_CHECKING:
@@ -53,7 +53,7 @@ def run(args: argparse.Namespace) -> int:
 def _refuse(reasons: list[str]) -> int:
     print("prespec register: refused:", file=sys.stderr)
     for reason in reasons:
-        print(f"  - {reason}", file=sys.stderr)
+        print(f"  - {plain_text(reason)}", file=sys.stderr)
     return 1
 
 
@@ -142,8 +142,8 @@ def register(target: str, paths: list[str], *, authorities: list[str] | None = N
     print(f"content sha256 {digest}")
     for authority, reply in tokens:
         summary = _token_summary(authority, reply)
-        print(f"timestamp from {authority}: {summary['time']}")
-    print(f"evidence: {evidence}")
+        print(plain_text(f"timestamp from {authority}: {summary['time']}"))
+    print(plain_text(f"evidence: {evidence}"))
     print(f"share it with reviewers: git push <remote> {name}")
     return 0
 
@@ -184,7 +184,7 @@ def _write_request(request_file: str, text: bytes, spec_id: str, paths: list[str
     except (WriteRefused, OSError) as error:
         return _refuse([f"cannot write {request_file}: {error}"])
     where = " ".join(paths) if paths != ["."] else ""
-    print(f"wrote the RFC 3161 request to {written}; nothing is registered yet")
+    print(plain_text(f"wrote the RFC 3161 request to {written}; nothing is registered yet"))
     print("send it to your time-stamping authority (content type application/timestamp-query), keep the reply, "
           f"and run: prespec register {spec_id} {where + ' ' if where else ''}--timestamp-reply REPLY.tsr")
     print("commit nothing in between: the request names the current commit")
