@@ -18,6 +18,7 @@ from .discovery import SpecFile
 from .model import ID_PATTERN, Spec
 from .pilot import InvalidPilot, PilotMissing, read_pilot
 from .power import InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
+from .power.results import power_text
 from .power.simulate import InvalidSimulation, SimulatedPower, simulate_plan
 from .problems import InvalidSpec, printable
 from .validation import validate_document
@@ -111,7 +112,7 @@ class SpecReport:
     @property
     def verdict(self) -> str:
         kinds = {f.kind for f in self.findings if f.severity == "error"}
-        for kind in ("invalid", "underpowered"):
+        for kind in ("invalid", "underpowered", "partial-clusters"):
             if kind in kinds:
                 return kind
         if kinds:
@@ -216,13 +217,27 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig) -> None:
         report.at_planned = power_at(design, analysable)
     required = sample.enrolment_per_group
     after = f" ({analysable} analysable after {design.attrition:.0%} attrition)" if design.attrition else ""
-    if planned < required:
-        achieved = (f"gives power {report.at_planned.power:.3f}" if report.at_planned
-                    else f"leaves fewer than {family.min_n} analysable units")
+    at = report.at_planned
+    if planned < required and at is not None and at.power >= design.power and sample.clusters_per_group:
+        report.add(
+            "partial-clusters", "error", "sample_size.per_group",
+            f"planned {planned} {unit} is not a whole number of clusters of {sample.cluster_size}: enrol "
+            f"{sample.enrolment_words()} (power at the planned n would be {power_text(at.power, design.power)}, "
+            f"which reaches the target {design.power:g}, but the design randomises whole clusters)",
+            loc,
+        )
+    elif planned < required:
+        if at is None:
+            achieved = f"leaves fewer than {family.min_n} analysable units, below the target {design.power:g}"
+        elif at.power >= design.power:  # exact power not monotone in n: this n reaches it, some larger do not
+            achieved = (f"gives power {power_text(at.power, design.power)}, at the target {design.power:g} at this n "
+                        "only (some larger n fall below it)")
+        else:
+            achieved = f"gives power {power_text(at.power, design.power)}, below the target {design.power:g}"
         report.add(
             "underpowered", "error", "sample_size.per_group",
-            f"planned {planned} {unit}{after} {achieved}, below the target {design.power:g}; "
-            f"{required} {unit} needed{_analysable_note(sample.n_per_group, design.attrition)}",
+            f"planned {planned} {unit}{after} {achieved}; "
+            f"{sample.enrolment_words()} needed{_analysable_note(sample.n_per_group, design.attrition)}",
             loc,
         )
     elif planned > required * (1 + config.oversize_margin):

@@ -254,6 +254,12 @@ def _effect_line(design: DesignBase, result: SampleSize | PowerAtN) -> str:
 
 
 def _fmt(value: Any) -> str:
+    if hasattr(value, "model_dump"):  # a nested block (cluster, multiplicity): its fields in words
+        value = value.model_dump(exclude_none=True)
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, dict):
+        return ", ".join(f"{k.replace('_', ' ')} {_fmt(v)}" for k, v in value.items() if v is not None)
     if isinstance(value, float):
         return _g(value)
     if isinstance(value, (list, tuple)):
@@ -262,7 +268,7 @@ def _fmt(value: Any) -> str:
 
 
 def _assumptions(design: DesignBase, groups: int) -> str:
-    parts = [f"alpha {design.alpha:g}", design.alternative, f"target power {design.power:g}"]
+    parts = [f"alpha {design.alpha:g}", design.family.sides(design), f"target power {design.power:g}"]
     if groups == 2:
         parts.append(f"allocation n2/n1 = {design.allocation_ratio:g}")
     for name in sorted(design.model_fields_set - _DESIGN_LABELS):
@@ -280,6 +286,35 @@ def _sizes(sizes: tuple[int, ...], unit: str) -> str:
         (" + ..." if len(sizes) > 2 else "") + ")"
 
 
+def _enrolment(design: DesignBase, result: SampleSize) -> str:
+    """The enrolment the solver returned, clusters in words: "110 per group: 11 clusters of 10, ..."."""
+    why = [f"for {design.attrition:.0%} attrition"] if design.attrition > 0 else []
+    if result.clusters_per_group:
+        why.append("rounded up to whole clusters")
+        enrolled = tuple(c * (result.cluster_size or 1) for c in result.clusters_per_group)
+    else:
+        enrolled = tuple(enrolment(g, design.attrition) for g in result.group_sizes)
+    text = result.enrolment_words() if len(set(enrolled)) == 1 else _sizes(enrolled, result.unit)
+    if len(enrolled) > 1 and len(set(enrolled)) == 1:
+        text += f" x {len(enrolled)} groups = {sum(enrolled):,} in total"
+    return text + (", " + " and ".join(why) if why else "")
+
+
+def _events(design: DesignBase, result: SampleSize | PowerAtN) -> str:
+    """Events, saying how they are rounded and how they relate to the analysable units."""
+    family = design.family
+    tested = design.as_tested()
+    expected = family.expected_events(tested, result.n_per_group, result.effect_size)
+    expected_text = "" if expected is None else (
+        f"; the {result.n_total:,} analysable units are expected to give {float(expected):.1f}")
+    if isinstance(result, PowerAtN):
+        exact = "" if expected is None else f" ({float(expected):.1f} before rounding)"
+        return f"{result.events:,} expected from the {result.n_total:,} analysable units{exact}"
+    needed = family.required_events(tested, result.effect_size)
+    exact = "" if needed is None else f" ({float(needed) * design.design_effect:.1f} by the formula, rounded up)"
+    return f"{result.events:,} to observe before the analysis{exact}{expected_text}"
+
+
 def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: SimulatedPower | None) -> None:
     family = design.family
     out = console()
@@ -287,11 +322,13 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
     rows.append(("effect", _effect_line(design, result)))
     rows.append(("assumptions", _assumptions(design, len(result.group_sizes))))
     rows.append(("analysable", _sizes(result.group_sizes, result.unit)))
-    if design.attrition > 0:
+    if isinstance(result, SampleSize) and (result.enrolment_total != result.n_total):
+        rows.append(("enrol", _enrolment(design, result)))
+    elif design.attrition > 0:  # power at a given n: the n is what remains after attrition
         enrolled = tuple(enrolment(g, design.attrition) for g in result.group_sizes)
         rows.append(("enrol", f"{_sizes(enrolled, result.unit)}, for {design.attrition:.0%} attrition"))
     if result.events is not None:
-        rows.append(("events", f"{result.events:,}"))
+        rows.append(("events", _events(design, result)))
     if isinstance(result, SampleSize):
         rows.append(("power", f"{result.achieved_power:.4f} ({_kind(design)}; the smallest n reaching "
                               f"{result.target_power:g})"))

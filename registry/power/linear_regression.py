@@ -90,6 +90,7 @@ class LinearRegression(Family):
 
     name = "linear-regression"
     title = "Multiple linear regression (F test of R-squared)"
+    undirected = "F"
     method = "exact power from the noncentral F distribution, lambda = f^2 N, df = (u, N - p - 1)"
     reference = (
         "Cohen, J. (1988). Statistical Power Analysis for the Behavioral Sciences (2nd ed.), chapter 9. "

@@ -17,6 +17,7 @@ from pydantic import BaseModel
 from ..checks import CAUTION, Finding, SpecReport
 from ..guidelines import GUIDELINES, REGISTRY_KEEPS, coverage
 from ..power.base import DesignBase, Family
+from ..power.results import power_text
 from . import mdtext as md
 from .numbers import Scenario, analysable, has_spread, sensitivity
 from .provenance import Provenance, iso_utc
@@ -63,8 +64,7 @@ def _num(value: Any) -> str:
 
 
 def _alternative(design: DesignBase) -> str:
-    return {"two-sided": "two-sided", "greater": "one-sided (an increase)",
-            "less": "one-sided (a decrease)"}[design.alternative]
+    return design.family.sides(design)
 
 
 def _counted(family: Family) -> str:
@@ -117,7 +117,7 @@ def _key_table(report: SpecReport) -> str:
         ("Significance level (alpha)", _num(design.alpha)),
         ("Target power", _num(design.power)),
         (f"Planned enrolment ({family.unit})", _num(spec.sample_size.per_group)),
-        (f"Required enrolment ({family.unit})", _num(sample.enrolment_per_group)),
+        (f"Required enrolment ({family.unit})", md.inline(sample.enrolment_words().replace(f" {family.unit}", "", 1))),
         (f"Required analysable ({family.unit})", _num(sample.n_per_group)),
         ("Power at the planned n", power),
         ("Check verdict", report.verdict),
@@ -273,7 +273,8 @@ def _justification(report: SpecReport) -> str:
         opening = "The sample size is based on the primary comparison of the design."
     sentences = [
         opening,
-        f"The primary analysis uses the {md.inline(_lower_first(family.title))}, {_alternative(design)}, at a "
+        f"The primary analysis uses the {md.inline(_lower_first(family.title))}"
+        f"{'' if family.undirected else ', ' + _alternative(design) + ','} at a "
         f"significance level of {_num(design.alpha)} with a target power of {design.power:.0%}.",
         _effect_phrase(report),
     ]
@@ -293,8 +294,10 @@ def _justification(report: SpecReport) -> str:
                      f"power of {sample.achieved_power:.3f}.")
     if design.attrition:
         enrolled_total = f" ({_num(sample.enrolment_total)} in total)" if sample.n_total != sample.n_per_group else ""
+        clusters = (f" ({sample.clusters_per_group[0]:,} clusters of {sample.cluster_size})"
+                    if sample.clusters_per_group else "")
         sentences.append(f"Allowing for {design.attrition:.0%} attrition, {_num(sample.enrolment_per_group)} "
-                         f"{counted}{enrolled_total} are to be enrolled.")
+                         f"{counted}{clusters}{enrolled_total} are to be enrolled.")
     sentences.append(_planned_sentence(report))
     sentences.append(_multiplicity(report))
     text = " ".join(sentences)
@@ -328,7 +331,10 @@ def _planned_sentence(report: SpecReport) -> str:
     left = f", {_num(kept)} analysable after attrition," if design.attrition else ""
     if report.at_planned is None:
         return f"The planned enrolment of {_num(planned)} {counted} leaves too few analysable units to test."
-    power = f"power {report.at_planned.power:.3f}"
+    power = f"power {power_text(report.at_planned.power, design.power)}"
+    if planned < report.sample.enrolment_per_group and report.at_planned.power >= design.power:
+        return (f"The planned enrolment of {_num(planned)} {counted}{left} gives {power}, but the design needs "
+                f"{md.inline(report.sample.enrolment_words())}.")
     if planned < report.sample.enrolment_per_group:
         return (f"The planned enrolment of {_num(planned)} {counted}{left} gives only {power}, below the target; "
                 "the design is underpowered as planned.")
@@ -366,7 +372,8 @@ def _size_table(report: SpecReport) -> str:
     if family.groups == 2 and design.allocation_ratio != 1:
         note += f" Group 2 gets {_num(design.allocation_ratio)} times the units of group 1, rounded up."
     if sample.events is not None:
-        note += f" The test needs {_num(sample.events)} events in all."
+        note += (f" The test needs {_num(sample.events)} events in all (the events formula rounded up to whole "
+                 "events); follow the study until they have occurred.")
     for extra in sample.notes:
         note += f" {md.inline(extra)}"
     return md.table(head, rows, ["l"] + ["r"] * (len(head) - 1)) + "\n\n" + note
@@ -388,7 +395,7 @@ def _mde(report: SpecReport) -> str:
              for n, v in natural.items() if n != family.symbol]
     smallest = f"{_join(words)} ({standardized})" if words else standardized
     return (f"With the planned {_num(at.n_per_group)} analysable {_counted(family)}, alpha {_num(design.alpha)} "
-            f"{_alternative(design)} and power {_num(design.power)}, the smallest effect the study can detect is "
+            f"({_alternative(design)}) and power {_num(design.power)}, the smallest effect the study can detect is "
             f"{smallest}. The stated effect is {symbol} = {at.effect_size:.3g}.")
 
 

@@ -1,0 +1,119 @@
+"""What a new user meets first: one number per question, sides named right, templates that pass check,
+hints that point the right way, one command-line grammar and clean terminal text."""
+
+from __future__ import annotations
+
+import math
+import re
+import textwrap
+from pathlib import Path
+
+import pytest
+from scipy.stats import norm
+
+from registry.power import design_from_params, family_names, solve_sample_size
+from registry.power.catalog import FAMILIES
+from registry.power.results import power_text
+
+CLUSTER = """\
+id: classroom-recall
+title: Spaced practice and word recall in classrooms
+status: planned
+data_collection:
+  start: 2027-03-01
+design:
+  test: two-sample-t
+  effect:
+    d: 0.5
+  attrition: 0.1
+  cluster:
+    size: 10
+    icc: 0.05
+sample_size:
+  per_group: {planned}
+amendments: []
+"""
+
+
+def _write(folder: Path, name: str, text: str) -> Path:
+    path = folder / name
+    path.write_text(textwrap.dedent(text), encoding="utf-8")
+    return path
+
+
+# ---------------------------------------------------------------- one number per question
+
+def _cluster_enrolment(d: float, m: int, icc: float, attrition: float) -> tuple[int, int]:
+    """Whole clusters per group, by hand: n for d (noncentral t), x design effect 1 + (m - 1) icc
+    (Donner & Klar 2000, common practice), / (1 - attrition) rounded up, up to whole clusters."""
+    n = solve_sample_size(design_from_params("two-sample-t", d=d)).n_per_group
+    analysable = math.ceil(n * (1 + (m - 1) * icc) - 1e-9)
+    enrol = math.ceil(analysable / (1 - attrition) - 1e-9)
+    clusters = math.ceil(enrol / m)
+    return clusters, clusters * m
+
+
+def test_size_says_the_cluster_enrolment_json_reports(run):
+    # d = 0.5 needs 64 per group (Cohen 1988 Table 2.4.1, from memory): x 1.45 = 93, / 0.9 = 104, -> 11 clusters
+    clusters, enrol = _cluster_enrolment(0.5, 10, 0.05, 0.1)
+    argv = ("size", "two-sample-t", "--d", "0.5", "--param", "cluster.size=10", "--param", "cluster.icc=0.05",
+            "--param", "attrition=0.1")
+    data = run(*argv, "--json").json()
+    assert data["enrolment_per_group"] == enrol and data["clusters_per_group"] == [clusters, clusters]
+    text = run(*argv).out
+    assert f"{enrol} per group: {clusters} clusters of 10" in text
+    assert f"{enrol * 2} in total" in text
+    assert "104 per group" not in text
+
+
+def test_check_never_calls_a_power_at_the_target_below_it(tmp_path, run):
+    clusters, enrol = _cluster_enrolment(0.5, 10, 0.05, 0.1)
+    _write(tmp_path, "classroom-recall.yaml", CLUSTER.format(planned=104))
+    report = run("check", tmp_path, "--json").json()["specs"][0]
+    finding = next(f for f in report["findings"] if f["field"] == "sample_size.per_group")
+    assert report["achieved_power"] >= 0.8
+    assert "below" not in finding["message"]
+    assert finding["kind"] == "partial-clusters"
+    assert f"enrol {enrol} per group: {clusters} clusters of 10" in finding["message"]
+    _write(tmp_path, "classroom-recall.yaml", CLUSTER.format(planned=enrol))
+    assert run("check", tmp_path, "--json").json()["specs"][0]["verdict"] == "ok"
+
+
+@pytest.mark.parametrize("power, target, digits", [
+    (0.79962, 0.8, 4),     # would print 0.800 at 3 decimals
+    (0.7999996, 0.8, 7),
+    (0.80146, 0.8, 3),     # at or above: 3 decimals are honest
+    (0.5, 0.8, 3),
+])
+def test_a_printed_power_below_the_target_reads_below_it(power, target, digits):
+    # common practice: a reported number must compare with the target as the value it stands for does
+    text = power_text(power, target)
+    assert len(text.split(".")[1]) == digits
+    assert (float(text) < target) == (power < target)
+
+
+def test_log_rank_says_how_events_are_rounded(run):
+    # Schoenfeld (1983): events = 4 (z_{1-alpha/2} + z_{1-beta})^2 / ln(HR)^2 for equal allocation
+    events = 4 * (norm.ppf(0.975) + norm.ppf(0.8)) ** 2 / math.log(0.6) ** 2
+    out = run("size", "log-rank", "--hr", "0.6", "--param", "event_probability=0.7").out
+    data = run("size", "log-rank", "--hr", "0.6", "--param", "event_probability=0.7", "--json").json()
+    line = next(row for row in out.splitlines() if row.strip().startswith("events"))
+    assert f"{math.ceil(events)} to observe" in line and f"{events:.1f} by the formula, rounded up" in line
+    assert f"{data['n_total'] * 0.7:.1f}" in line  # expected events from the analysable units, unrounded
+
+
+@pytest.mark.parametrize("argv, sides", [
+    (("one-way-anova", "--f", "0.25", "--groups", "4"), "F test, no sides"),
+    (("linear-regression", "--f2", "0.15", "--predictors", "3"), "F test, no sides"),
+    (("chi-square", "--w", "0.3", "--df", "2"), "chi-square test, no sides"),
+    (("noninferiority-t", "--difference", "0", "--sd", "1", "--param", "margin=0.5"), "one-sided (higher is better)"),
+    (("two-sample-t", "--d", "0.5", "--alternative", "greater"), "one-sided (an increase)"),
+])
+def test_sides_are_named_as_the_test_has_them(run, argv, sides):
+    # common practice: F and chi-square tests reject in the upper tail only and have no sides;
+    # a non-inferiority test is one-sided by construction
+    out = run("size", *argv).out
+    line = next(row for row in out.splitlines() if row.strip().startswith("assumptions"))
+    assert sides in line
+    if sides != "two-sided":
+        assert "two-sided" not in line
