@@ -18,6 +18,8 @@ from pydantic import BaseModel, ValidationError
 
 from .model import Spec
 from .power.catalog import UnknownFamily, family_names
+from .power.synonyms import ALTERNATIVE_SYNONYMS
+from .power.synonyms import hint as synonym_hint
 from .problems import NO_VALUE, InvalidSpec, Problem
 from .yamlio import Document
 
@@ -231,9 +233,8 @@ def _message(error: dict[str, Any], loc: tuple[Any, ...], model: type[BaseModel]
     if kind == "literal_error":
         expected = ctx.get("expected", "")
         options = re.findall(r"'([^']*)'", expected)
-        close = difflib.get_close_matches(str(value), options, n=1, cutoff=0.5)
-        hint = f"; did you mean {close[0]!r}?" if close else ""
-        return f"{name} must be one of {expected}; got {_short(value)}{hint}"
+        synonyms = ALTERNATIVE_SYNONYMS if loc and loc[-1] == "alternative" else None
+        return f"{name} must be one of {expected}; got {_short(value)}{synonym_hint(value, options, synonyms)}"
     if kind in ("string_type", "str_type"):
         return f"{name} must be text; got {_short(value)} (put it in quotes if it is meant as text)"
     if kind == "string_too_short":

@@ -12,6 +12,7 @@ from ..discovery import UsageError
 from ..fsutil import WriteRefused, confined, write_atomic
 from ..model import ID_PATTERN, SCHEMA_ID
 from ..power import design_from_params, family_names, get_family, solve_sample_size
+from ..power.base import InfeasibleDesign
 from ..power.catalog import UnknownFamily
 
 __all__ = ["new", "template", "HELP", "add_arguments", "run"]
@@ -48,6 +49,20 @@ def _yaml_scalar(value: object) -> str:
     return repr(value)
 
 
+def _alternative_line(test: str, effect: dict[str, object]) -> str:
+    """The template's ``alternative`` line, or a comment where the family takes no explicit one."""
+    family = get_family(test)
+    try:
+        solve_sample_size(design_from_params(test, **effect, alternative="two-sided", attrition=0.1))
+    except InfeasibleDesign as error:
+        if error.field == "design.alternative":
+            return f"  # no 'alternative' here: the test is {family.sides(design_from_params(test, **effect))}\n"
+        raise
+    if family.undirected is not None:
+        return f"  alternative: two-sided   # the {family.undirected} test has no sides; keep two-sided\n"
+    return "  alternative: two-sided   # or greater / less for a one-sided test\n"
+
+
 def template(spec_id: str, test: str, title: str | None, schema_ref: str, today: date | None = None) -> str:
     family = get_family(test)
     start = (today or date.today()) + timedelta(days=90)
@@ -76,8 +91,7 @@ data_collection:
   start: {start.isoformat()}      # first day of data collection
 design:
   test: {test}           # {family.title}
-  alternative: two-sided
-  alpha: 0.05
+{_alternative_line(test, effect)}  alpha: 0.05
   power: 0.8
   effect:                # replace with your smallest effect of interest
 {effect_lines}
