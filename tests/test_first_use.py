@@ -117,3 +117,94 @@ def test_sides_are_named_as_the_test_has_them(run, argv, sides):
     assert sides in line
     if sides != "two-sided":
         assert "two-sided" not in line
+
+
+# ---------------------------------------------------------------- templates and hints
+
+@pytest.mark.parametrize("test", family_names())
+def test_every_family_template_passes_check(tmp_path, run, test):
+    # the catalog is the list of families, so a family added later is covered here too
+    assert run("new", f"new-{test}", tmp_path, "--test", test).status == 0
+    report = run("check", tmp_path, "--json", "--no-history").json()["specs"][0]
+    bad = [f for f in report["findings"] if f["severity"] in ("error", "warning")]
+    assert report["verdict"] == "ok" and not bad, bad
+
+
+@pytest.mark.parametrize("given, meant", [
+    ("unpaired-t", "two-sample-t"),       # one edit from paired-t, but the opposite design
+    ("independent-t", "two-sample-t"),
+    ("dependent-t", "paired-t"),
+    ("wilcoxon-rank-sum", "mann-whitney"),
+    ("tost", "equivalence-t"),
+    ("paried-t", "paired-t"),             # a typo still gets the closest spelling
+    ("Two-Sample-T", "two-sample-t"),
+])
+def test_family_hints_prefer_known_synonyms(run, given, meant):
+    # common practice: these names are used for these designs in statistics textbooks
+    result = run("size", given, "--d", "0.5")
+    assert result.status == 2 and f"did you mean '{meant}'?" in result.err
+
+
+def test_sides_hint_names_the_one_sided_choices(tmp_path, run):
+    assert run("new", "one-tail", tmp_path).status == 0
+    spec = tmp_path / "one-tail.yaml"
+    spec.write_text(re.sub(r"alternative: two-sided.*", "alternative: one-sided", spec.read_text()))
+    finding = next(f for f in run("check", tmp_path, "--json").json()["specs"][0]["findings"]
+                   if f["field"] == "design.alternative")
+    assert "use greater or less" in finding["message"]
+    result = run("size", "two-sample-t", "--d", "0.5", "--alternative", "one-sided")
+    assert result.status == 2 and "use greater or less" in result.err
+
+
+# ---------------------------------------------------------------- one command-line grammar
+
+def test_size_options_are_named_as_the_spec_names_them(run):
+    by_option = run("size", "noninferiority-t", "--difference", "0", "--sd", "1", "--margin", "0.5",
+                    "--allocation-ratio", "2", "--json").json()
+    by_param = run("size", "noninferiority-t", "--difference", "0", "--sd", "1", "--param", "margin=0.5",
+                   "--param", "allocation_ratio=2", "--json").json()
+    assert by_option == by_param
+    assert by_option["group_sizes"][1] == 2 * by_option["group_sizes"][0]
+    help_text = run("size", "--help").out
+    assert "N2_OVER_N1" not in help_text
+    for option in ("--allocation-ratio", "--margin", "--p0", "--sd1", "--sd2", "--cluster-icc", "--d", "--f",
+                   "--f2", "--w", "--hr"):
+        assert option in help_text
+
+
+def test_simulate_leaves_the_family_alone(run):
+    before = run("size", "--simulate", "two-sample-t", "--d", "0.8", "--json").json()
+    after = run("size", "two-sample-t", "--d", "0.8", "--simulate", "--json").json()
+    assert before["test"] == "two-sample-t" and before["simulation"] == after["simulation"]
+
+
+def test_one_error_prefix(run):
+    result = run("size", "two-sample-t", "--d", "x")
+    assert result.status == 2
+    assert result.err.count("prespec") == 1 and result.err.startswith("prespec size: error:")
+
+
+def test_registry_is_a_positional_path_everywhere(tmp_path, run):
+    from .conftest import EXAMPLES
+
+    assert run("new", "gut-transit", tmp_path / "reg").status == 0
+    assert (tmp_path / "reg" / "gut-transit.yaml").is_file()
+    out = tmp_path / "site"
+    assert run("render", "--all", EXAMPLES, "--out", out, "--no-history").status == 0
+    assert (out / "index.html").is_file()
+    one = run("render", "fibre-butyrate", EXAMPLES, "--no-history", "--json").json()
+    assert one["written"] == [] and one["specs"][0]["markdown"].startswith("[//]: # (prespec")
+    data = run("hash", "fibre-butyrate", EXAMPLES, "--json").json()
+    assert re.fullmatch(r"[0-9a-f]{64}", data["sha256"])
+
+
+def test_render_without_out_writes_nothing(tmp_path, run):
+    from .conftest import EXAMPLES
+    import shutil
+
+    registry = tmp_path / "reg"
+    shutil.copytree(EXAMPLES, registry)
+    before = sorted(p.name for p in registry.rglob("*"))
+    result = run("render", "fibre-butyrate", registry, "--no-history")
+    assert result.status == 0 and "# High-fibre diet" in result.out
+    assert sorted(p.name for p in registry.rglob("*")) == before

@@ -22,14 +22,18 @@ HELP = "write a new spec from a commented template"
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("id", metavar="ID", help="the spec id: lowercase letters, digits and hyphens")
-    parser.add_argument("--dir", default=".", metavar="DIR", help="registry folder to write ID.yaml into")
+    parser.add_argument("path", nargs="?", default=None, metavar="PATH",
+                        help="registry folder to write ID.yaml into (default: the current folder)")
+    parser.add_argument("--dir", default=None, metavar="DIR", help=argparse.SUPPRESS)
     parser.add_argument("--test", default="two-sample-t", metavar="FAMILY",
                         help=f"design family (default two-sample-t); one of: {', '.join(family_names())}")
     parser.add_argument("--title", default=None, help="the experiment's title")
 
 
 def run(args: argparse.Namespace) -> int:
-    return new(args.id, folder=args.dir, test=args.test, title=args.title)
+    if args.path is not None and args.dir is not None and args.path != args.dir:
+        raise UsageError(f"give the folder once: {args.path} or --dir {args.dir}")
+    return new(args.id, folder=args.path or args.dir or ".", test=args.test, title=args.title)
 
 
 def _schema_reference(folder: Path) -> str:
