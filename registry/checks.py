@@ -167,6 +167,9 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None) -> Spe
         _invalid(report, error)
         return report
     data = report.document.data
+    if not_a_spec(data):
+        report.add("not-a-spec", "info", "", "YAML with no spec field (no id, no design), so not a spec; skipped")
+        return report
     if isinstance(data.get("id"), str) and _ID_RE.fullmatch(data["id"]):
         report.id = data["id"]  # shown beside the errors; an unchecked id could carry markup
     try:
@@ -359,6 +362,43 @@ def _completeness(report: SpecReport, spec: Spec) -> None:
             report.add("incomplete", "warning", f"design.{name}",
                        f"design.{name} is not stated; the default {getattr(spec.design, name):g} was used, "
                        "state it so reviewers see it", ("design",))
+
+
+def not_a_spec(data: Any) -> bool:
+    """A YAML mapping with keys, none of them a spec field (an environment or CI file, say)."""
+    return isinstance(data, dict) and bool(data) and not any(key in Spec.model_fields for key in data)
+
+
+def check_registry(files: list[SpecFile], config_for: Any = None
+                   ) -> tuple[list[SpecFile], list[SpecReport], list[str]]:
+    """Check the specs among ``files``: (files, reports, skipped) with files and reports aligned.
+
+    Files a registry's ``include``/``exclude`` leave out are not read; YAML files that are plainly
+    not specs (:func:`not_a_spec`) are set aside and their paths returned in ``skipped``. A file
+    named on the command line is always checked.
+    """
+    if config_for is not None:
+        files = [f for f in files if f.named or f.refusal or config_for(f).selects(f.path)]
+    reports = check_files(files, config_for)
+    kept_files, kept, skipped = [], [], []
+    for spec_file, report in zip(files, reports):
+        if [x.kind for x in report.findings] == ["not-a-spec"]:
+            if not spec_file.named:
+                skipped.append(report.path)
+                continue
+            report.findings = [Finding("not-a-spec", "error", "", None, "this YAML file has no spec field (no id, "
+                                       "no design), so it is not a spec; see docs/spec-format.md for the fields")]
+        kept_files.append(spec_file)
+        kept.append(report)
+    return kept_files, kept, skipped
+
+
+
+def skipped_line(skipped: list[str]) -> str:
+    """The one info line about YAML files set aside as not specs."""
+    return (f"info: skipped {len(skipped)} YAML file{'s' if len(skipped) != 1 else ''} with no spec field (no id, "
+            f"no design): {', '.join(skipped)}; list {'them' if len(skipped) != 1 else 'it'} under 'exclude' in "
+            ".prespec.yaml to say so")
 
 
 def check_files(files: list[SpecFile], config_for: Any = None) -> list[SpecReport]:

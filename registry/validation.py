@@ -261,8 +261,25 @@ def _message(error: dict[str, Any], loc: tuple[Any, ...], model: type[BaseModel]
 
 
 def _short(value: Any) -> str:
-    text = repr(value)
-    return text if len(text) <= 80 else text[:76] + "...'"
+    """A value as the spec writes it, quoted when text, cut at 80 characters with any quote closed.
+
+    >>> _short(True), _short(None), _short([1, "a"]), _short("x" * 100)[-6:], _short({"a": "b" * 100})[-4:]
+    ('true', 'null', "[1, 'a']", "xx...'", 'b...')
+    """
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if value is None:
+        return "null"
+    if isinstance(value, str):
+        text = "'" + value.replace("'", "''") + "'"  # YAML's single-quoted style
+        return text if len(text) <= 80 else text[:76] + "...'"
+    if isinstance(value, (list, tuple)):  # YAML's flow style
+        text = "[" + ", ".join(_short(v) for v in value) + "]"
+    elif isinstance(value, dict):
+        text = "{" + ", ".join(f"{k}: {_short(v)}" for k, v in value.items()) + "}"
+    else:
+        text = repr(value)
+    return text if len(text) <= 80 else text[:77] + "..."
 
 
 def _shorten_quotes(message: str) -> str:

@@ -208,3 +208,92 @@ def test_render_without_out_writes_nothing(tmp_path, run):
     result = run("render", "fibre-butyrate", registry, "--no-history")
     assert result.status == 0 and "# High-fibre diet" in result.out
     assert sorted(p.name for p in registry.rglob("*")) == before
+
+
+# ---------------------------------------------------------------- registries that hold other YAML
+
+ENVIRONMENT = "name: lab-env\nchannels:\n  - conda-forge\ndependencies:\n  - python=3.11\n  - numpy\n"
+
+
+def test_yaml_that_is_plainly_not_a_spec_is_skipped_with_one_line(tmp_path, run):
+    from .conftest import EXAMPLES
+
+    (tmp_path / "fibre-butyrate.yaml").write_text((EXAMPLES / "fibre-butyrate.yaml").read_text())
+    (tmp_path / "environment.yaml").write_text(ENVIRONMENT)
+    (tmp_path / "ci").mkdir()
+    (tmp_path / "ci" / "jobs.yml").write_text("jobs:\n  test:\n    runs-on: any\n")
+    result = run("check", tmp_path, "--no-history")
+    assert result.status == 0
+    assert [line for line in result.err.splitlines() if "skipped" in line] == [result.err.strip()]
+    assert "environment.yaml" in result.err and "jobs.yml" in result.err
+    data = run("check", tmp_path, "--no-history", "--json").json()
+    assert [s["id"] for s in data["specs"]] == ["fibre-butyrate"] and len(data["skipped"]) == 2
+    # a file named on the command line is always read, and a non-spec is then an error
+    named = run("check", tmp_path / "environment.yaml", "--no-history", "--json").json()
+    assert named["specs"][0]["verdict"] == "not-a-spec"
+
+
+def test_include_and_exclude_globs_choose_the_spec_files(tmp_path, run):
+    from .conftest import EXAMPLES
+
+    (tmp_path / "specs" / "old").mkdir(parents=True)
+    (tmp_path / "specs" / "fibre-butyrate.yaml").write_text((EXAMPLES / "fibre-butyrate.yaml").read_text())
+    (tmp_path / "specs" / "old" / "sirt3-knockdown.yaml").write_text((EXAMPLES / "sirt3-knockdown.yaml").read_text())
+    (tmp_path / "notes.yaml").write_text("title: a lab notebook page\n")  # has a spec field: not plainly other
+    assert run("check", tmp_path, "--no-history").status == 1
+    (tmp_path / ".prespec.yaml").write_text("include: ['specs/**/*.yaml']\nexclude: ['old/']\n")
+    data = run("check", tmp_path, "--no-history", "--json").json()
+    assert [s["id"] for s in data["specs"]] == ["fibre-butyrate"] and data["skipped"] == []
+    (tmp_path / ".prespec.yaml").write_text("exclude: ['/etc/x.yaml']\n")
+    result = run("check", tmp_path, "--no-history")
+    assert result.status == 1 and "exclude" in result.err and "relative to the registry folder" in result.err
+
+
+# ---------------------------------------------------------------- terminal output
+
+def test_no_line_ends_in_padding(run):
+    from .conftest import EXAMPLES
+
+    for argv in (("check", EXAMPLES, "--no-history"), ("size", "two-sample-t", "--d", "0.5")):
+        out = run(*argv).out
+        assert out and not [line for line in out.splitlines() if line != line.rstrip()]
+
+
+@pytest.mark.parametrize("value, shown", [
+    ("x" * 200, "'" + "x" * 75 + "...'"),   # a cut text keeps its closing quote
+    (True, "true"),                          # YAML spelling, not Python's
+    (None, "null"),
+    ({"method": "bonferroni"}, "{method: 'bonferroni'}"),
+])
+def test_values_in_messages_are_spelled_as_in_yaml(value, shown):
+    from registry.validation import _short
+
+    assert _short(value) == shown
+
+
+def test_history_values_keep_their_quotes_and_amendments_read_as_text():
+    from registry.history import show, show_change
+
+    cut = show("a" * 100)
+    assert cut.startswith('"') and cut.endswith('..."')
+    amendment = {"date": "2027-05-06", "fields": ["exclusion_criteria"], "reason": "Two volunteers arrived late.",
+                 "approved_by": "Unit statistician"}
+    text = show_change([], [amendment], width=1000)
+    assert "{" not in text and "approved by Unit statistician" in text and "fields exclusion_criteria" in text
+
+
+def test_hints_for_ids_with_capitals_and_pilot_columns(tmp_path, run):
+    from .conftest import EXAMPLES
+
+    assert "did you mean 'gut-transit'?" in run("new", "Gut_Transit", tmp_path).err
+    assert "did you mean 'fibre-butyrate'?" in run("hash", "Fibre-Butyrate", EXAMPLES).err
+    assert "did you mean 'fibre-butyrate'?" in run("render", "Fibre-Butyrate", EXAMPLES, "--no-history").err
+    csv = tmp_path / "controls.csv"
+    csv.write_text("mouse,butyrate\n1,2.5\n2,3.1\n3,2.2\n")
+    assert "did you mean 'butyrate'?" in run("pilot", csv, "--column", "Butyrate").err
+
+
+def test_no_python_reprs_in_size_output(run):
+    out = run("size", "noninferiority-t", "--difference", "0", "--sd", "1", "--margin", "0.5",
+              "--multiplicity-outcomes", "2").out
+    assert "True" not in out and "method='" not in out and "outcomes=" not in out

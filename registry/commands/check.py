@@ -6,7 +6,7 @@ import argparse
 import sys
 
 from ..audit import add_history
-from ..checks import CAUTION, SpecReport, check_files
+from ..checks import CAUTION, SpecReport, check_registry, skipped_line
 from ..config import config_loader
 from ..discovery import UsageError, discover
 from ..report import console, print_findings, print_table, summary_line, to_json
@@ -40,17 +40,21 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
     files = discover(paths)
     config_errors: list[str] = []
     config_for = config_loader(config_errors, oversize_margin)
-    reports: list[SpecReport] = check_files(files, config_for)
+    reports: list[SpecReport]
+    files, reports, skipped = check_registry(files, config_for)
     status = add_history(reports, files, paths, config_for) if history else None
     failed = any(r.has_errors for r in reports) or bool(config_errors) or bool(status and status.problems)
     if as_json:
         extra: dict[str, object] = {"config_errors": config_errors} if config_errors else {}
+        extra["skipped"] = skipped
         extra["history"] = status.to_dict() if status else {"checked": False, "message": "skipped (--no-history)"}
         print(to_json(reports, extra))
         return 1 if failed else 0
     out = console()
     for error in config_errors:
         print(error, file=sys.stderr)
+    if skipped:
+        print(skipped_line(skipped), file=sys.stderr)
     if not reports:
         out.print(f"No spec files (*.yaml, *.yml) found under {', '.join(paths)}.")
         return 0

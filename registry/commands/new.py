@@ -9,6 +9,7 @@ from datetime import date, timedelta
 from pathlib import Path
 
 from ..discovery import UsageError
+from ..hints import normalised_id
 from ..fsutil import WriteRefused, confined, write_atomic
 from ..model import ID_PATTERN, SCHEMA_ID
 from ..power import design_from_params, family_names, get_family, solve_sample_size
@@ -116,7 +117,9 @@ amendments: []
 
 def new(spec_id: str, *, folder: str = ".", test: str = "two-sample-t", title: str | None = None) -> int:
     if not re.fullmatch(ID_PATTERN, spec_id) or len(spec_id) > 64:
-        raise UsageError(f"id must be lowercase letters, digits and single hyphens (at most 64); got {spec_id!r}")
+        fixed = normalised_id(spec_id)
+        hint = f"; did you mean {fixed!r}?" if fixed else ""
+        raise UsageError(f"id must be lowercase letters, digits and single hyphens (at most 64); got {spec_id!r}{hint}")
     try:
         get_family(test)
     except UnknownFamily as error:

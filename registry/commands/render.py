@@ -3,16 +3,16 @@
 from __future__ import annotations
 
 import argparse
-import difflib
 import json
 import os
 import sys
 from pathlib import Path
 
 from ..audit import add_history
-from ..checks import CAUTION, SpecReport, check_files
+from ..checks import CAUTION, SpecReport, check_registry, skipped_line
 from ..config import config_loader
 from ..discovery import UsageError, discover
+from ..hints import id_hint
 from ..fsutil import WriteRefused, confined, write_atomic
 from ..summary import IndexRow, build_index, build_summary, render_time
 from ..summary.figure import SVG_MARKER
@@ -119,7 +119,9 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     config_errors: list[str] = []
     spec_files = discover(registry)
     config_for = config_loader(config_errors)
-    reports = check_files(spec_files, config_for)
+    spec_files, reports, skipped = check_registry(spec_files, config_for)
+    if skipped and all_specs:
+        print(skipped_line(skipped), file=sys.stderr)
     if history:
         add_history(reports, spec_files, registry, config_for)
     for error in config_errors:
@@ -128,8 +130,7 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
         chosen = [r for r in reports if r.id == spec_id]
         if not chosen:
             known = sorted({r.id for r in reports if r.id})
-            close = difflib.get_close_matches(spec_id, known, n=1)
-            hint = f"; did you mean {close[0]!r}?" if close else ""
+            hint = id_hint(spec_id, known)
             listing = f" Ids found: {', '.join(known)}." if known else " No specs were found there."
             raise UsageError(f"no spec with id {spec_id!r} under {', '.join(registry)}{hint}{listing}")
         if len(chosen) > 1:
