@@ -51,8 +51,11 @@ def build_summary(report: SpecReport, spec_path: Path, rendered_at: datetime, *,
     body = insert_figure(markdown_to_html(markdown), figure_name(spec.id), figure_alt(spec.id),
                          inline_svg(figure), figure.description)
     nav = '<nav aria-label="Registry"><a href="index.html">All summaries</a></nav>\n' if index_link else ""
+    version = prov.freeze_tags[-1][0].rsplit("/", 1)[-1] if prov.freeze_tags else (
+        f"commit {prov.commit[:10]}" if prov.commit else "not committed")
+    header = f"{spec.id} · {version} · rendered {iso_utc(rendered_at)[:10]}"
     html = page(title=f"{spec.title} ({spec.id}): design summary", body=body, rendered_at=iso_utc(rendered_at),
-                tool_version=__version__, caution=CAUTION, nav=nav)
+                tool_version=__version__, caution=CAUTION, nav=nav, running_header=header)
     return Summary(spec.id, markdown, html, figure.svg, prov)
 
 

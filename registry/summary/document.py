@@ -15,7 +15,7 @@ from typing import Any
 from pydantic import BaseModel
 
 from ..checks import CAUTION, Finding, SpecReport
-from ..guidelines import GUIDELINES, REGISTRY_KEEPS, coverage
+from ..guidelines import REGISTRY_KEEPS, coverage, guidelines_for, study_type
 from ..power.base import DesignBase, Family
 from ..power.results import power_text
 from . import mdtext as md
@@ -92,6 +92,38 @@ def figure_alt(spec_id: str) -> str:
     return f"Power curve of {spec_id}: power against analysable n, target and planned n marked"
 
 
+#: How a verdict reads where it matters: a symbol and words, so it stands out in black and white too.
+_BAD = {"underpowered", "invalid", "partial-clusters", "drift", "history-unreadable", "untracked", "unreadable"}
+_GOOD = {"ok", "clean", "registered"}
+
+
+def verdict_level(verdict: str) -> str:
+    """'good', 'warn' or 'bad': how much a verdict asks for a reader's attention."""
+    if verdict in _GOOD:
+        return "good"
+    if verdict in _BAD or verdict.endswith("error"):
+        return "bad"
+    return "warn"
+
+
+def flag(verdict: str) -> str:
+    """A verdict as a flag the page styles: '**✔ ok**', '**⚠ OVERSIZED**', '**✖ UNDERPOWERED**'."""
+    level = verdict_level(verdict)
+    if level == "good":
+        return f"**✔ {md.inline(verdict)}**"
+    return f"**{'✖' if level == 'bad' else '⚠'} {md.inline(verdict.upper())}**"
+
+
+def _status_block(report: SpecReport, prov: Provenance) -> str:
+    """The lines at the top: render date, start of data collection, registration, and the verdicts."""
+    tags = [name for name, _ in prov.freeze_tags]
+    registration = flag("registered") + f" ({', '.join(md.code(t) for t in tags)})" if tags else flag("not registered")
+    drift = drift_verdict(report)
+    return (f"Rendered {iso_utc(prov.rendered_at)[:10]} · data collection starts "
+            f"{prov.data_collection_start.isoformat()} · registration: {registration}\n\n"
+            f"Sample size: {flag(report.verdict)} · history: {flag(drift)}")
+
+
 def drift_verdict(report: SpecReport) -> str:
     """The most serious history finding kind; 'clean' when history was read and found nothing;
     'history not checked' when the report carries no history information."""
@@ -120,8 +152,8 @@ def _key_table(report: SpecReport) -> str:
         (f"Required enrolment ({family.unit})", md.inline(sample.enrolment_words().replace(f" {family.unit}", "", 1))),
         (f"Required analysable ({family.unit})", _num(sample.n_per_group)),
         ("Power at the planned n", power),
-        ("Check verdict", report.verdict),
-        ("Drift verdict", drift_verdict(report)),
+        ("Check verdict", flag(report.verdict)),
+        ("Drift verdict", flag(drift_verdict(report))),
     ]
     return md.table(["Quantity", "Value"], rows)
 
@@ -492,9 +524,21 @@ def _guidelines(report: SpecReport) -> str:
     spec = report.spec
     assert spec is not None
     items = coverage(spec)
-    parts = ["Which items of published reporting guidelines the spec's fields speak to. The topics are "
+    kind, inferred = study_type(spec)
+    chosen = guidelines_for(spec)
+    if kind is None:
+        why = ("The spec does not state its `study_type` (animal, clinical-trial, in-vitro, field or "
+               "human-observational) and its population does not settle it, so every guideline is shown; "
+               "state it to see only those that apply.")
+    else:
+        how = "inferred from the population; state `study_type` to confirm it" if inferred else "stated in the spec"
+        names = ", ".join(g.name for g in chosen)
+        why = (f"Study type: {kind} ({how}). " + (f"Guidelines for it: {names}." if chosen else
+               "None of the guidelines prespec maps (ARRIVE 2.0, SPIRIT 2013, CONSORT 2010) is written for "
+               "this kind of study, so none is checked."))
+    parts = [why + " The tables show which items of each guideline the spec's fields speak to. The topics are "
              "paraphrased; consult each checklist for its full wording."]
-    for guideline in GUIDELINES:
+    for guideline in chosen:
         rows = []
         for item in (c for c in items if c.guideline == guideline.name):
             fields = ", ".join("registry history" if f == REGISTRY_KEEPS else f for f in item.present + item.missing)
@@ -502,7 +546,8 @@ def _guidelines(report: SpecReport) -> str:
             if item.status == "partly covered":
                 status += " (missing: " + ", ".join(item.missing) + ")"
             rows.append((item.number, item.topic, status, md.cell(fields)))
-        parts.append(f"### {md.inline(guideline.name)}\n\n"
+        scope = f"{md.inline(guideline.scope)}\n\n" if guideline.scope else ""
+        parts.append(f"### {md.inline(guideline.name)}\n\n" + scope
                      + md.table(["Item", "Topic", "Status", "Spec fields"], rows, ["r", "l", "l", "l"])
                      + f"\n\n{md.inline(guideline.reference)}")
     return "\n\n".join(parts)
@@ -549,6 +594,7 @@ def summary_markdown(report: SpecReport, prov: Provenance) -> str:
         "status": spec.status,
         "family_title": md.inline(spec.design.family.title),
         "caution": md.inline(CAUTION),
+        "status_block": _status_block(report, prov),
         "key_table": _key_table(report),
         "question": _question(report),
         "outcomes": _outcomes(report),
@@ -592,8 +638,8 @@ def index_markdown(rows: list[IndexRow], rendered_at: str, tool_version: str) ->
             _num(spec.sample_size.per_group),
             _num(report.required_per_group),
             power,
-            report.verdict,
-            drift_verdict(report),
+            flag(report.verdict),
+            flag(drift_verdict(report)),
         ))
     count = f"{len(table_rows)} summar{'y' if len(table_rows) == 1 else 'ies'}"
     table = (md.table(["Spec", "Id", "Status", "Planned n", "Required n", "Power at planned n", "Check verdict",

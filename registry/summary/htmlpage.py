@@ -8,6 +8,7 @@ SVG, which replaces the one image reference our template writes.
 from __future__ import annotations
 
 import html
+import re
 from importlib import resources
 from string import Template
 
@@ -56,15 +57,34 @@ def insert_figure(body: str, src: str, alt: str, svg: str, caption: str) -> str:
     return body.replace(reference, figure)
 
 
+_FLAG = re.compile(r"<strong>([✔⚠✖]) ")
+_LEVELS = {"✔": "good", "⚠": "warn", "✖": "bad"}
+
+
+def mark_flags(body: str) -> str:
+    """Give the verdict flags the Markdown wrote (``**✔ ok**``, ``**✖ DRIFT**``) their colour class,
+    and the status lines at the top theirs."""
+    body = _FLAG.sub(lambda m: f'<strong class="flag flag-{_LEVELS[m.group(1)]}">{m.group(1)} ', body)
+    return re.sub(r"<p>(Rendered |Sample size: )", r'<p class="status">\1', body)
+
+
+def _css_string(text: str) -> str:
+    return '"' + "".join(ch if ch.isalnum() or ch in " .:-_/()·," else f"\\{ord(ch):x} " for ch in text) + '"'
+
+
 def page(*, title: str, body: str, rendered_at: str, tool_version: str, caution: str, nav: str = "",
-         wide: bool = False) -> str:
+         wide: bool = False, running_header: str = "") -> str:
     """A complete HTML document; ``title`` and ``caution`` are plain text, ``body`` and ``nav`` are HTML.
-    ``wide`` gives a table-heavy page (the index) a wider column."""
+    ``wide`` gives a table-heavy page (the index) a wider column; ``running_header`` (plain text) is
+    printed at the top of every printed page."""
+    css = CSS
+    if running_header:
+        css += f"@page {{ @top-left {{ content: {_css_string(running_header)}; }} }}\n"
     return _PAGE.substitute(
         layout="wide" if wide else "reading",
         title=html.escape(title),
-        css=CSS,
-        body=body,
+        css=css,
+        body=mark_flags(body),
         nav=nav,
         rendered_at=html.escape(rendered_at),
         tool_version=html.escape(tool_version),
