@@ -16,6 +16,7 @@ from ..hints import id_hint
 from ..fsutil import WriteRefused, confined, write_atomic
 from ..summary import IndexRow, build_index, build_summary, render_time
 from ..summary.figure import SVG_MARKER
+from ..summary.htmlpage import SITE_SCRIPT, SITE_SCRIPT_NAME
 
 __all__ = ["render", "HELP", "add_arguments", "run"]
 
@@ -26,6 +27,7 @@ _OWN_MARKERS = {
     ".md": "[//]: # (prespec ",
     ".html": '<meta name="generator" content="prespec ',
     ".svg": SVG_MARKER,
+    ".js": "// prespec ",
 }
 
 
@@ -153,7 +155,7 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
         rows.append(IndexRow(report, f"{summary.spec_id}.html"))
     if all_specs:
         index_md, index_html = build_index(rows, rendered_at)
-        files.update({"index.md": index_md, "index.html": index_html})
+        files.update({SITE_SCRIPT_NAME: SITE_SCRIPT, "index.md": index_md, "index.html": index_html})
     if out is None:  # nothing is written: the registry stays as it is
         return _print_unwritten(rows, files, as_json, failed)
     try:

@@ -64,5 +64,5 @@ def build_index(rows: list[IndexRow], rendered_at: datetime) -> tuple[str, str]:
     stamp = iso_utc(rendered_at)
     markdown = index_markdown(rows, stamp, __version__)
     html = page(title="Design registry summaries", body=markdown_to_html(markdown), rendered_at=stamp,
-                tool_version=__version__, caution=CAUTION, wide=True)
+                tool_version=__version__, caution=CAUTION, wide=True, script=True)
     return markdown, html

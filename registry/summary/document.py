@@ -482,6 +482,35 @@ def _analysis(report: SpecReport) -> dict[str, str]:
     }
 
 
+def _timeline(report: SpecReport, prov: Provenance) -> str:
+    """Every committed version of the spec, its registrations and amendments, and, for each version,
+    the locked fields it changed (old -> new)."""
+    from ..history import commit_day, show_change
+
+    history = report.history
+    if history is None or not history.revisions:
+        return "No git history was read for this spec, so there is no timeline of versions."
+    tags: dict[str, list[str]] = {}
+    for name, sha in prov.freeze_tags:
+        tags.setdefault(sha, []).append(name)
+    rows = []
+    for version, revision in enumerate(history.revisions, start=1):
+        commit = revision.commit
+        events = [revision.action]
+        events += [f"registered as {md.code(t)}" for t in tags.get(commit.sha, [])]
+        locked = [c for c in revision.changes if c.locked]
+        if any(c.field == "amendments" or c.amendment for c in revision.changes):
+            events.append("amendment")
+        diff = "; ".join(f"{md.code(c.field)}: {md.cell(show_change(c.old, c.new))}"
+                         + (" (amended)" if c.amended else " (**drift**)" if c.after_start else "")
+                         for c in locked) or "-"
+        rows.append((f"v{version}", commit_day(commit.committer_date).isoformat(), md.code(commit.short),
+                     md.cell(", ".join(events)), "after" if revision.after_start else "before", diff))
+    return ("One row per committed version; the last column compares each version's locked fields with the "
+            "version before.\n\n" + md.table(["Version", "Date", "Commit", "Event", "Start", "Locked fields changed"],
+                                               rows, ["l", "l", "l", "l", "l", "l"]))
+
+
 def _amendments(report: SpecReport) -> str:
     spec = report.spec
     assert spec is not None
@@ -606,6 +635,7 @@ def summary_markdown(report: SpecReport, prov: Provenance) -> str:
         "figure": _figure(report),
         **_analysis(report),
         "amendments": _amendments(report),
+        "timeline": _timeline(report, prov),
         "drift": _drift(report),
         "findings": _findings(report),
         "guidelines": _guidelines(report),

@@ -15,7 +15,7 @@ from string import Template
 from markdown_it import MarkdownIt
 from markdown_it.rules_core import StateCore
 
-__all__ = ["markdown_to_html", "page", "insert_figure", "CSS"]
+__all__ = ["markdown_to_html", "page", "insert_figure", "CSS", "SITE_SCRIPT", "SITE_SCRIPT_NAME"]
 
 
 def _table_headers(state: StateCore) -> None:
@@ -41,6 +41,9 @@ def _parser() -> MarkdownIt:
 
 _PARSER = _parser()
 CSS = resources.files("registry").joinpath("templates", "summary.css").read_text(encoding="utf-8")
+#: The index's filter script: a file beside the pages, allowed by the CSP as 'self' (no inline script).
+SITE_SCRIPT_NAME = "site.js"
+SITE_SCRIPT = resources.files("registry").joinpath("templates", SITE_SCRIPT_NAME).read_text(encoding="utf-8")
 _PAGE = Template(resources.files("registry").joinpath("templates", "page.html").read_text(encoding="utf-8"))
 
 
@@ -73,7 +76,7 @@ def _css_string(text: str) -> str:
 
 
 def page(*, title: str, body: str, rendered_at: str, tool_version: str, caution: str, nav: str = "",
-         wide: bool = False, running_header: str = "") -> str:
+         wide: bool = False, running_header: str = "", script: bool = False) -> str:
     """A complete HTML document; ``title`` and ``caution`` are plain text, ``body`` and ``nav`` are HTML.
     ``wide`` gives a table-heavy page (the index) a wider column; ``running_header`` (plain text) is
     printed at the top of every printed page."""
@@ -81,6 +84,8 @@ def page(*, title: str, body: str, rendered_at: str, tool_version: str, caution:
     if running_header:
         css += f"@page {{ @top-left {{ content: {_css_string(running_header)}; }} }}\n"
     return _PAGE.substitute(
+        script_src="; script-src 'self'" if script else "",
+        script=f'<script src="{SITE_SCRIPT_NAME}" defer></script>\n' if script else "",
         layout="wide" if wide else "reading",
         title=html.escape(title),
         css=css,
