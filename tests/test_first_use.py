@@ -297,3 +297,73 @@ def test_no_python_reprs_in_size_output(run):
     out = run("size", "noninferiority-t", "--difference", "0", "--sd", "1", "--margin", "0.5",
               "--multiplicity-outcomes", "2").out
     assert "True" not in out and "method='" not in out and "outcomes=" not in out
+
+
+# ---------------------------------------------------------------- the summary page and the site
+
+@pytest.fixture(scope="module")
+def demo_site(tmp_path_factory):
+    from registry.cli import main
+
+    root = tmp_path_factory.mktemp("lab")
+    main(["demo", str(root / "lab")])
+    out = root / "site"
+    main(["render", "--all", str(root / "lab" / "registry"), "--out", str(out)])
+    return out
+
+
+def test_page_top_says_dates_registration_and_verdicts(demo_site):
+    text = (demo_site / "fibre-butyrate.md").read_text()
+    top = text.split("## Key numbers")[0]
+    assert "Rendered " in top and "data collection starts 2024-03-04" in top
+    assert "registration: **✔ registered** (`prespec/fibre-butyrate/v1`)" in top
+    drifted = (demo_site / "exercise-blood-pressure.md").read_text().split("## Key numbers")[0]
+    assert "history: **✖ DRIFT**" in drifted  # words and a symbol, not colour alone
+    html = (demo_site / "exercise-blood-pressure.html").read_text()
+    assert '<strong class="flag flag-bad">✖ DRIFT</strong>' in html
+    assert "@top-left { content: \"exercise-blood-pressure" in html and "counter(pages)" in html
+
+
+def test_timeline_lists_versions_registrations_and_locked_changes(demo_site):
+    text = (demo_site / "exercise-blood-pressure.md").read_text()
+    timeline = text.split("### Timeline of versions")[1].split("###")[0]
+    assert "| v1 |" in timeline and "| v2 |" in timeline
+    assert "`analysis_plan`:" in timeline and "(**drift**)" in timeline
+    registered = (demo_site / "fibre-butyrate.md").read_text().split("### Timeline of versions")[1].split("###")[0]
+    assert "registered as `prespec/fibre-butyrate/v1`" in registered
+
+
+def test_site_index_has_its_filter_script_under_a_strict_policy(demo_site):
+    index = (demo_site / "index.html").read_text()
+    assert "script-src 'self'" in index and '<script src="site.js" defer></script>' in index
+    assert index.count("<script") == 1  # no inline script
+    assert (demo_site / "site.js").read_text().startswith("// prespec ")
+    page = (demo_site / "fibre-butyrate.html").read_text()
+    assert "<script" not in page and "script-src" not in page
+
+
+@pytest.mark.parametrize("study_type, shown, hidden", [
+    # ARRIVE 2.0 is written for animal research, SPIRIT/CONSORT for trials (the guidelines' own scope)
+    ("animal", ["ARRIVE 2.0 Essential 10"], ["SPIRIT 2013", "CONSORT 2010"]),
+    ("clinical-trial", ["SPIRIT 2013", "CONSORT 2010"], ["ARRIVE 2.0 Essential 10"]),
+    ("in-vitro", [], ["ARRIVE 2.0 Essential 10", "SPIRIT 2013", "CONSORT 2010"]),
+])
+def test_guidelines_follow_the_study_type(tmp_path, run, study_type, shown, hidden):
+    from .conftest import EXAMPLES
+
+    text = (EXAMPLES / "fibre-butyrate.yaml").read_text().replace("\nstatus:", f"\nstudy_type: {study_type}\nstatus:")
+    (tmp_path / "fibre-butyrate.yaml").write_text(text)
+    markdown = run("render", "fibre-butyrate", tmp_path, "--no-history").out
+    section = markdown.split("## Reporting-guideline coverage")[1].split("## Provenance")[0]
+    assert f"Study type: {study_type} (stated in the spec)" in section
+    for name in shown:
+        assert f"### {name}" in section
+    for name in hidden:
+        assert f"### {name}" not in section
+
+
+def test_power_curve_shows_planned_and_required_when_equal(demo_site):
+    svg = (demo_site / "caffeine-reaction-time-power.svg").read_text()
+    md_text = (demo_site / "caffeine-reaction-time.md").read_text()
+    planned = re.search(r"Planned \| (\d+)", md_text)
+    assert "the required n" in svg and planned is not None

@@ -505,7 +505,7 @@ def _timeline(report: SpecReport, prov: Provenance) -> str:
                          + (" (amended)" if c.amended else " (**drift**)" if c.after_start else "")
                          for c in locked) or "-"
         rows.append((f"v{version}", commit_day(commit.committer_date).isoformat(), md.code(commit.short),
-                     md.cell(", ".join(events)), "after" if revision.after_start else "before", diff))
+                     ", ".join(events), "after" if revision.after_start else "before", diff))
     return ("One row per committed version; the last column compares each version's locked fields with the "
             "version before.\n\n" + md.table(["Version", "Date", "Commit", "Event", "Start", "Locked fields changed"],
                                                rows, ["l", "l", "l", "l", "l", "l"]))
