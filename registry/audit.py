@@ -18,6 +18,7 @@ from typing import Any
 from .checks import Finding, SpecReport, check_files
 from .config import RegistryConfig
 from .discovery import SpecFile, UsageError, discover, display_name
+from .hints import id_hint
 from .git import Commit, GitProblem, Repository, TagInfo, find_repository
 from .history import Event, Snapshot, SnapshotStore, SpecHistory, UnreadableBlob, analyze, dotted_loc, \
     spec_events, uncommitted_findings
@@ -357,7 +358,8 @@ def find_spec(target: str, paths: Sequence[str] = (".",),
     matches = [(f, r) for f, r in zip(files, reports) if r.id == target]
     if not matches:
         where = ", ".join(paths)
-        raise UsageError(f"no spec with id {target!r} under {where} (give the id of a spec, or a spec file)")
+        hint = id_hint(target, [r.id for r in reports if r.id])
+        raise UsageError(f"no spec with id {target!r} under {where}{hint} (give the id of a spec, or a spec file)")
     if len(matches) > 1:
         raise UsageError(f"id {target!r} is used by {', '.join(r.path for _, r in matches)}; ids must be unique")
     return matches[0]

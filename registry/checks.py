@@ -19,6 +19,7 @@ from .discovery import SpecFile
 from .model import ID_PATTERN, Spec
 from .pilot import InvalidPilot, PilotMissing, pilot_root, read_pilot
 from .power import EventsOnly, InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
+from .power.results import power_text
 from .power.simulate import InvalidSimulation, SimulatedPower, simulate_plan
 from .problems import InvalidSpec, printable
 from .validation import validate_document
@@ -114,7 +115,7 @@ class SpecReport:
     @property
     def verdict(self) -> str:
         kinds = {f.kind for f in self.findings if f.severity == "error"}
-        for kind in ("invalid", "underpowered"):
+        for kind in ("invalid", "underpowered", "partial-clusters"):
             if kind in kinds:
                 return kind
         if kinds:
@@ -171,6 +172,9 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None, execut
         _invalid(report, error)
         return report
     data = report.document.data
+    if not_a_spec(data):
+        report.add("not-a-spec", "info", "", "YAML with no spec field (no id, no design), so not a spec; skipped")
+        return report
     if isinstance(data.get("id"), str) and _ID_RE.fullmatch(data["id"]):
         report.id = data["id"]  # shown beside the errors; an unchecked id could carry markup
     try:
@@ -259,13 +263,27 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | N
             report.at_planned = apply_to_power(report.at_planned, report.sequential)
     required = sample.enrolment_per_group
     after = f" ({analysable} analysable after {design.attrition:.0%} attrition)" if design.attrition else ""
-    if planned < required:
-        achieved = (f"gives power {report.at_planned.power:.3f}" if report.at_planned
-                    else f"leaves fewer than {family.min_n} analysable units")
+    at = report.at_planned
+    if planned < required and at is not None and at.power >= design.power and sample.clusters_per_group:
+        report.add(
+            "partial-clusters", "error", "sample_size.per_group",
+            f"planned {planned} {unit} is not a whole number of clusters of {sample.cluster_size}: enrol "
+            f"{sample.enrolment_words()} (power at the planned n would be {power_text(at.power, design.power)}, "
+            f"which reaches the target {design.power:g}, but the design randomises whole clusters)",
+            loc,
+        )
+    elif planned < required:
+        if at is None:
+            achieved = f"leaves fewer than {family.min_n} analysable units, below the target {design.power:g}"
+        elif at.power >= design.power:  # exact power not monotone in n: this n reaches it, some larger do not
+            achieved = (f"gives power {power_text(at.power, design.power)}, at the target {design.power:g} at this n "
+                        "only (some larger n fall below it)")
+        else:
+            achieved = f"gives power {power_text(at.power, design.power)}, below the target {design.power:g}"
         report.add(
             "underpowered", "error", "sample_size.per_group",
-            f"planned {planned} {unit}{after} {achieved}, below the target {design.power:g}; "
-            f"{required} {unit} needed{_analysable_note(sample.n_per_group, design.attrition)}",
+            f"planned {planned} {unit}{after} {achieved}; "
+            f"{sample.enrolment_words()} needed{_analysable_note(sample.n_per_group, design.attrition)}",
             loc,
         )
     elif planned > required * (1 + config.oversize_margin):
@@ -469,6 +487,43 @@ def _template_text(report: SpecReport, spec: Spec) -> None:
             report.add("template-text", "warning", path,
                        f"{path} is still the template's placeholder {placeholder!r}; write this experiment's own "
                        "text (register refuses a spec with template text)", loc)
+
+
+def not_a_spec(data: Any) -> bool:
+    """A YAML mapping with keys, none of them a spec field (an environment or CI file, say)."""
+    return isinstance(data, dict) and bool(data) and not any(key in Spec.model_fields for key in data)
+
+
+def check_registry(files: list[SpecFile], config_for: Any = None, executor: Any = None
+                   ) -> tuple[list[SpecFile], list[SpecReport], list[str]]:
+    """Check the specs among ``files``: (files, reports, skipped) with files and reports aligned.
+
+    Files a registry's ``include``/``exclude`` leave out are not read; YAML files that are plainly
+    not specs (:func:`not_a_spec`) are set aside and their paths returned in ``skipped``. A file
+    named on the command line is always checked.
+    """
+    if config_for is not None:
+        files = [f for f in files if f.named or f.refusal or config_for(f).selects(f.path)]
+    reports = check_files(files, config_for, executor)
+    kept_files, kept, skipped = [], [], []
+    for spec_file, report in zip(files, reports):
+        if [x.kind for x in report.findings] == ["not-a-spec"]:
+            if not spec_file.named:
+                skipped.append(report.path)
+                continue
+            report.findings = [Finding("not-a-spec", "error", "", None, "this YAML file has no spec field (no id, "
+                                       "no design), so it is not a spec; see docs/spec-format.md for the fields")]
+        kept_files.append(spec_file)
+        kept.append(report)
+    return kept_files, kept, skipped
+
+
+
+def skipped_line(skipped: list[str]) -> str:
+    """The one info line about YAML files set aside as not specs."""
+    return (f"info: skipped {len(skipped)} YAML file{'s' if len(skipped) != 1 else ''} with no spec field (no id, "
+            f"no design): {', '.join(skipped)}; list {'them' if len(skipped) != 1 else 'it'} under 'exclude' in "
+            ".prespec.yaml to say so")
 
 
 def check_files(files: list[SpecFile], config_for: Any = None, executor: Any = None) -> list[SpecReport]:

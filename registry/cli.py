@@ -31,7 +31,9 @@ class _Parser(argparse.ArgumentParser):
         if any(arg.startswith("-") and arg.endswith((".yaml", ".yml")) for arg in unknown):
             message += ("; a file name starting with '-' is read as an option: put '--' before the file names "
                         "(prespec check -- -name.yaml) or write ./-name.yaml")
-        raise UsageError(f"{self.prog}: {message}")
+        error = UsageError(message)
+        error.prog = self.prog  # type: ignore[attr-defined]  # "prespec size": said once, in front
+        raise error
 
 
 def _command_in(argv: Sequence[str]) -> str | None:
@@ -69,7 +71,7 @@ def main(argv: list[str] | None = None) -> int:
             return 2
         return int(args.run(args))
     except UsageError as error:
-        print(plain_text(f"prespec: error: {error}"), file=sys.stderr)
+        print(plain_text(f"{getattr(error, 'prog', 'prespec')}: error: {error}"), file=sys.stderr)
         return 2
     except SystemExit as exit_:  # --help and --version
         return int(exit_.code or 0) if isinstance(exit_.code, int) or exit_.code is None else 2

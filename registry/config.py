@@ -2,17 +2,19 @@
 
 from __future__ import annotations
 
+import re
+from functools import lru_cache
 from pathlib import Path
 from typing import Callable
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError
+from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, ValidationError, field_validator
 
 from .discovery import SpecFile
 from .problems import InvalidSpec
 from .yamlio import load_file
 
 __all__ = ["RegistryConfig", "TimestampSettings", "CONFIG_NAME", "load_config", "find_config", "config_loader",
-           "trust_paths"]
+           "trust_paths", "glob_matches"]
 
 CONFIG_NAME = ".prespec.yaml"
 
@@ -59,6 +61,75 @@ class RegistryConfig(BaseModel):
     )
     timestamp: TimestampSettings = Field(default_factory=TimestampSettings,
                                          description="RFC 3161 time-stamping authorities and trust anchors.")
+    include: list[str] = Field(
+        default_factory=list,
+        description="Glob patterns, relative to the folder of .prespec.yaml, of the YAML files that are specs "
+        "(e.g. specs/**/*.yaml); empty: every *.yaml and *.yml file. A pattern without '/' matches a file "
+        "name in any folder; '**' matches any number of folders.",
+    )
+    exclude: list[str] = Field(
+        default_factory=list,
+        description="Glob patterns of YAML files that are not specs (e.g. environment.yaml, ci/**); they "
+        "are not read. A spec file named on the command line is always read.",
+    )
+    _folder: Path | None = PrivateAttr(default=None)
+
+    @field_validator("include", "exclude")
+    @classmethod
+    def _patterns(cls, patterns: list[str]) -> list[str]:
+        for pattern in patterns:
+            if not pattern.strip() or pattern.startswith("/") or ".." in Path(pattern).parts:
+                raise ValueError(f"must be glob patterns relative to the registry folder; got {pattern!r}")
+        return patterns
+
+    def selects(self, path: Path) -> bool:
+        """Whether a YAML file found in a registry folder is to be read as a spec."""
+        if self._folder is None or not (self.include or self.exclude):
+            return True
+        try:
+            relative = path.absolute().relative_to(self._folder.absolute()).as_posix()
+        except ValueError:
+            return True
+        if self.include and not any(glob_matches(p, relative) for p in self.include):
+            return False
+        return not any(glob_matches(p, relative) for p in self.exclude)
+
+
+@lru_cache(maxsize=256)
+def _glob_regex(pattern: str) -> re.Pattern[str]:
+    if "/" not in pattern.rstrip("/"):
+        pattern = "**/" + pattern
+    if pattern.endswith("/"):
+        pattern += "**"
+    out, i = [], 0
+    while i < len(pattern):
+        if pattern.startswith("**/", i):
+            out.append("(?:[^/]*/)*")
+            i += 3
+        elif pattern.startswith("**", i):
+            out.append(".*")
+            i += 2
+        elif pattern[i] == "*":
+            out.append("[^/]*")
+            i += 1
+        elif pattern[i] == "?":
+            out.append("[^/]")
+            i += 1
+        else:
+            out.append(re.escape(pattern[i]))
+            i += 1
+    return re.compile("".join(out) + r"\Z")
+
+
+def glob_matches(pattern: str, relative: str) -> bool:
+    """Whether a '/'-separated relative path matches a registry glob pattern.
+
+    >>> glob_matches("environment.yaml", "env/environment.yaml"), glob_matches("specs/**/*.yaml", "specs/a.yaml")
+    (True, True)
+    >>> glob_matches("specs/*.yaml", "specs/old/a.yaml"), glob_matches("ci/", "ci/jobs/build.yml")
+    (False, True)
+    """
+    return _glob_regex(pattern).match(relative) is not None
 
 
 def find_config(start: Path) -> Path | None:
@@ -100,7 +171,9 @@ def load_config(path: Path | None) -> RegistryConfig:
         return RegistryConfig()
     doc = load_file(path)
     try:
-        return RegistryConfig.model_validate(doc.data)
+        config = RegistryConfig.model_validate(doc.data)
+        config._folder = path.parent
+        return config
     except ValidationError as exc:
         from .validation import _problems
 

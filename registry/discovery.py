@@ -34,6 +34,7 @@ class SpecFile:
     root: Path
     outside: bool = False  # a symlink whose target lies outside the registry
     reason: str = ""  # why the file must not be read, if it must not
+    named: bool = False  # named on the command line itself, not found in a folder
 
     @property
     def refusal(self) -> str:
@@ -90,7 +91,7 @@ def discover(paths: list[str]) -> list[SpecFile]:
         if not path.exists() and not path.is_symlink():
             raise UsageError(f"{display_name(raw)}: no such file or folder")
         if not path.is_dir():
-            add(SpecFile(path, display_name(path), path.absolute().parent))
+            add(SpecFile(path, display_name(path), path.absolute().parent, named=True))
             continue
         root = path.resolve()
         unlisted: list[OSError] = []

@@ -14,12 +14,14 @@ listed (results, harms, funding and the like are reported elsewhere).
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from typing import Any, Literal
 
 from .model import Spec
 
-__all__ = ["Guideline", "GuidelineItem", "Coverage", "GUIDELINES", "coverage", "REGISTRY_KEEPS"]
+__all__ = ["Guideline", "GuidelineItem", "Coverage", "GUIDELINES", "coverage", "REGISTRY_KEEPS", "study_type",
+           "guidelines_for"]
 
 #: A pseudo-field meaning "the registry itself records this" (git history and the amendment log).
 REGISTRY_KEEPS = "(registry history)"
@@ -37,6 +39,10 @@ class Guideline:
     name: str
     reference: str
     items: tuple[GuidelineItem, ...]
+    #: The ``study_type`` values the guideline is written for.
+    study_types: tuple[str, ...] = ()
+    #: Which of the checklist's items are listed, and why.
+    scope: str = ""
 
 
 _I = GuidelineItem
@@ -55,6 +61,9 @@ GUIDELINES: tuple[Guideline, ...] = (
             _I("6", "each outcome defined, the primary one named", ("outcomes",)),
             _I("7", "the statistical method for each analysis", ("analysis_plan",)),
         ),
+        ("animal",),
+        "Essential 10, items 1-7: those a design registry can already answer (items 8-10, results and "
+        "their interpretation, are reported after the study).",
     ),
     Guideline(
         "SPIRIT 2013",
@@ -73,6 +82,8 @@ GUIDELINES: tuple[Guideline, ...] = (
             _I("21b", "interim analyses and rules for stopping", ("stopping_rule",)),
             _I("25", "how changes to the protocol are recorded", (REGISTRY_KEEPS,)),
         ),
+        ("clinical-trial",),
+        "Items listed: the protocol items a design spec can speak to.",
     ),
     Guideline(
         "CONSORT 2010",
@@ -90,6 +101,8 @@ GUIDELINES: tuple[Guideline, ...] = (
             _I("11a", "who was blinded after assignment, and how", ("blinding",)),
             _I("12a", "statistical methods for primary and secondary outcomes", ("analysis_plan",)),
         ),
+        ("clinical-trial",),
+        "Items listed: the methods items fixed before the trial starts.",
     ),
 )
 
@@ -115,6 +128,32 @@ def _stated(spec: Spec, path: str) -> bool:
     return value not in (None, [], "")
 
 
+#: Words in a spec's population that say what kind of study it is (common practice: the experimental unit).
+_ANIMAL = re.compile(r"\b(mouse|mice|rats?|zebrafish|animals?|pigs?|sheep|rabbits?|primates?|macaques?|"
+                     r"hamsters?|guinea pigs?|ferrets?|dogs?|cats?|chickens?|drosophila|flies)\b", re.I)
+_IN_VITRO = re.compile(r"\b(cell lines?|cultures?|organoids?|in vitro|wells?|cells)\b", re.I)
+_FIELD = re.compile(r"\b(plots?|pots?|seedlings?|plants?|soil|glasshouse|greenhouse|fields?|trees?)\b", re.I)
+
+
+def study_type(spec: Spec) -> tuple[str | None, bool]:
+    """(study type, whether it was inferred): the spec's ``study_type``, else one read from its
+    population where the words leave no doubt, else (None, False)."""
+    if spec.study_type is not None:
+        return spec.study_type, False
+    text = " ".join(filter(None, [spec.population or "", spec.title]))
+    found = [kind for kind, words in (("animal", _ANIMAL), ("in-vitro", _IN_VITRO), ("field", _FIELD))
+             if words.search(text)]
+    return (found[0], True) if len(found) == 1 else (None, False)
+
+
+def guidelines_for(spec: Spec) -> tuple[Guideline, ...]:
+    """The guidelines written for the spec's study type; all of them when the type is not known."""
+    kind, _ = study_type(spec)
+    if kind is None:
+        return GUIDELINES
+    return tuple(g for g in GUIDELINES if kind in g.study_types)
+
+
 def coverage(spec: Spec) -> list[Coverage]:
     """Each listed item with the spec fields that speak to it, and whether they are all stated.
 
@@ -127,7 +166,7 @@ def coverage(spec: Spec) -> list[Coverage]:
     [('1', 'partly covered'), ('2', 'partly covered'), ('3', 'missing'), ('4', 'covered')]
     """
     out = []
-    for guideline in GUIDELINES:
+    for guideline in guidelines_for(spec):
         for item in guideline.items:
             present = tuple(f for f in item.fields if _stated(spec, f))
             missing = tuple(f for f in item.fields if f not in present)

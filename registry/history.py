@@ -342,12 +342,36 @@ def show(value: Any, width: int = 60) -> str:
         return "(absent)"
     if value is None:
         return "null"
-    text = json.dumps(value, ensure_ascii=False, sort_keys=True) if not isinstance(value, (int, float)) \
-        or isinstance(value, bool) else f"{value:g}" if isinstance(value, float) else str(value)
-    return text if len(text) <= width else text[: width - 3] + "..."
+    if isinstance(value, dict):  # an amendment, a block: its fields as words, not JSON
+        text = "; ".join(f"{str(k).replace('_', ' ')} {_words(v)}" for k, v in value.items())
+    else:
+        text = json.dumps(value, ensure_ascii=False, sort_keys=True) if not isinstance(value, (int, float)) \
+            or isinstance(value, bool) else f"{value:g}" if isinstance(value, float) else str(value)
+    if len(text) <= width:
+        return text
+    if text.startswith('"') and text.endswith('"'):  # a cut text keeps its closing quote
+        return text[: width - 4] + '..."'
+    return text[: width - 3] + "..."
 
 
-def show_change(old: Any, new: Any) -> str:
+def _words(value: Any) -> str:
+    """A value inside a block, for :func:`show`: lists comma-separated, text unquoted unless empty."""
+    if isinstance(value, list):
+        return ", ".join(_words(v) for v in value) or "none"
+    if isinstance(value, dict):
+        return "(" + ", ".join(f"{str(k).replace('_', ' ')} {_words(v)}" for k, v in value.items()) + ")"
+    if isinstance(value, str):
+        return " ".join(value.split()) or '""'
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if value is None:
+        return "none"
+    if isinstance(value, (date, datetime)):
+        return value.isoformat()
+    return f"{value:g}" if isinstance(value, float) else str(value)
+
+
+def show_change(old: Any, new: Any, width: int = 60) -> str:
     """``old -> new`` for messages; for lists, the items added and removed.
 
     >>> show_change(0.05, 0.1)
@@ -358,11 +382,11 @@ def show_change(old: Any, new: Any) -> str:
     if isinstance(old, list) and isinstance(new, list):
         key = lambda v: json.dumps(v, sort_keys=True, default=str)  # noqa: E731
         before, after = [key(v) for v in old], [key(v) for v in new]
-        added = [show(v) for v, k in zip(new, after) if k not in before]
-        removed = [show(v) for v, k in zip(old, before) if k not in after]
+        added = [show(v, width) for v, k in zip(new, after) if k not in before]
+        removed = [show(v, width) for v, k in zip(old, before) if k not in after]
         parts = ([f"added {'; '.join(added)}"] if added else []) + ([f"removed {'; '.join(removed)}"] if removed else [])
         return f"{len(old)} -> {len(new)} items" + (": " + ", ".join(parts) if parts else " (reordered)")
-    return f"{show(old)} -> {show(new)}"
+    return f"{show(old, width)} -> {show(new, width)}"
 
 
 @dataclass(frozen=True)

@@ -38,6 +38,7 @@ _ID_RE = re.compile(ID_PATTERN)
 _ISO_DATE_RE = re.compile(r"^\d{4}-\d{2}-\d{2}$")
 
 Status = Literal["draft", "planned", "collecting", "complete", "withdrawn"]
+StudyType = Literal["animal", "clinical-trial", "in-vitro", "field", "human-observational"]
 
 
 def _iso_date(value: Any) -> Any:
@@ -150,6 +151,12 @@ class Spec(_Strict):
     question: Text | None = locked(default=None, description="The research question in one or two sentences.")
     population: Text | None = locked(
         default=None, description="Who or what is studied and the experimental unit (animal, culture, person)."
+    )
+    study_type: StudyType | None = free(
+        default=None,
+        description="animal, clinical-trial, in-vitro, field or human-observational: chooses the reporting "
+        "guidelines the summary checks (ARRIVE 2.0 for animal work, SPIRIT and CONSORT for trials, none "
+        "forced on the others); inferred from the population where it can be.",
     )
     hypotheses: list[Hypothesis] = locked(default_factory=list, description="Hypotheses; exactly one primary.")
     outcomes: Outcomes | None = locked(default=None, description="Primary and secondary outcomes with units.")

@@ -36,6 +36,8 @@ from pathlib import Path
 
 from scipy.special import chdtri
 
+from .hints import name_hint
+
 __all__ = ["PilotSummary", "InvalidPilot", "PilotMissing", "read_column", "summarize", "read_pilot",
            "sd_upper_limit", "file_sha256", "MISSING_MARKERS", "MAX_PILOT_BYTES", "pilot_root"]
 
@@ -245,7 +247,9 @@ def read_column(text: str, column: str, shown: str = "<pilot>") -> tuple[list[fl
         shown_names = ", ".join(repr(name) for name in safe) or "none"
         if hidden:
             shown_names += f" and {hidden} name{'s' if hidden != 1 else ''} not shown (not a plain column name)"
-        raise InvalidPilot(f"{shown}:1: no column {column!r}; the header has {shown_names}")
+        hint = name_hint(column, safe)
+        raise InvalidPilot(f"{shown}:1: no column {column!r}{hint + ' The' if hint else '; the'} header has "
+                           f"{shown_names}")
     index = names.index(column)
     values: list[float] = []
     missing = 0

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import os
+import re
 import sys
 from typing import IO, Any
 
@@ -21,13 +22,23 @@ VERDICT_STYLES = {"ok": "green", "oversized": "yellow", "underpowered": "bold re
 _SEVERITY_STYLES = {"error": "red", "warning": "yellow", "info": "cyan"}
 
 
+_TRAILING = re.compile(r"[ \t]+((?:\x1b\[[0-9;]*m)*)$", re.MULTILINE)
+
+
+class _Console(Console):
+    """A rich console whose lines never end in the spaces that pad tables and wrapped text."""
+
+    def _render_buffer(self, buffer: Any) -> str:
+        return _TRAILING.sub(r"\1", super()._render_buffer(buffer))
+
+
 def console(file: IO[str] | None = None) -> Console:
     """A console that uses colour only on a terminal and never when NO_COLOR is set, and reads no
     markup in what it prints (user text such as ``[/]`` or ``[link=...]`` stays text)."""
     stream = file or sys.stdout
     tty = bool(getattr(stream, "isatty", lambda: False)())
     plain = bool(os.environ.get("NO_COLOR")) or not tty
-    return Console(file=stream, color_system=None if plain else "auto", no_color=plain, highlight=False,
+    return _Console(file=stream, color_system=None if plain else "auto", no_color=plain, highlight=False,
                    emoji=False, markup=False, width=None if tty else 120)
 
 

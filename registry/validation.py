@@ -18,6 +18,8 @@ from pydantic import BaseModel, ValidationError
 
 from .model import Spec
 from .power.catalog import UnknownFamily, family_names
+from .power.synonyms import ALTERNATIVE_SYNONYMS
+from .power.synonyms import hint as synonym_hint
 from .problems import NO_VALUE, InvalidSpec, Problem
 from .yamlio import Document
 
@@ -231,9 +233,8 @@ def _message(error: dict[str, Any], loc: tuple[Any, ...], model: type[BaseModel]
     if kind == "literal_error":
         expected = ctx.get("expected", "")
         options = re.findall(r"'([^']*)'", expected)
-        close = difflib.get_close_matches(str(value), options, n=1, cutoff=0.5)
-        hint = f"; did you mean {close[0]!r}?" if close else ""
-        return f"{name} must be one of {expected}; got {_short(value)}{hint}"
+        synonyms = ALTERNATIVE_SYNONYMS if loc and loc[-1] == "alternative" else None
+        return f"{name} must be one of {expected}; got {_short(value)}{synonym_hint(value, options, synonyms)}"
     if kind in ("string_type", "str_type"):
         return f"{name} must be text; got {_short(value)} (put it in quotes if it is meant as text)"
     if kind == "string_too_short":
@@ -260,8 +261,25 @@ def _message(error: dict[str, Any], loc: tuple[Any, ...], model: type[BaseModel]
 
 
 def _short(value: Any) -> str:
-    text = repr(value)
-    return text if len(text) <= 80 else text[:76] + "...'"
+    """A value as the spec writes it, quoted when text, cut at 80 characters with any quote closed.
+
+    >>> _short(True), _short(None), _short([1, "a"]), _short("x" * 100)[-6:], _short({"a": "b" * 100})[-4:]
+    ('true', 'null', "[1, 'a']", "xx...'", 'b...')
+    """
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if value is None:
+        return "null"
+    if isinstance(value, str):
+        text = "'" + value.replace("'", "''") + "'"  # YAML's single-quoted style
+        return text if len(text) <= 80 else text[:76] + "...'"
+    if isinstance(value, (list, tuple)):  # YAML's flow style
+        text = "[" + ", ".join(_short(v) for v in value) + "]"
+    elif isinstance(value, dict):
+        text = "{" + ", ".join(f"{k}: {_short(v)}" for k, v in value.items()) + "}"
+    else:
+        text = repr(value)
+    return text if len(text) <= 80 else text[:77] + "..."
 
 
 def _shorten_quotes(message: str) -> str:

@@ -55,7 +55,7 @@ def pages(tmp_path_factory):
     from registry.cli import main
 
     out = tmp_path_factory.mktemp("pages")
-    assert main(["render", "--all", "--out", str(out), "--registry", str(EXAMPLES)]) == 0
+    assert main(["render", "--all", str(EXAMPLES), "--out", str(out)]) == 0
     return out
 
 
@@ -106,3 +106,72 @@ def test_print_stylesheet_applies(browser, pages):
         assert width == "none"
     finally:
         browser.execute_cdp_cmd("Emulation.setEmulatedMedia", {"media": ""})
+
+
+SHOTS = Path(os.environ.get("PRESPEC_SCREENSHOTS") or tempfile.mkdtemp(prefix="prespec-shots-"))
+
+
+def _local_only(driver) -> list[str]:
+    """Every resource the page loaded that is not a local file or inline data (must be none)."""
+    urls = driver.execute_script("return performance.getEntriesByType('resource').map(e => e.name)")
+    return [u for u in urls if not u.startswith(("file:", "data:"))]
+
+
+def test_page_screenshot_and_printed_pdf(browser, pages):
+    import base64
+    import re
+    import subprocess
+
+    browser.get((pages / "fibre-butyrate.html").as_uri())
+    assert _severe(browser) == [] and _local_only(browser) == []
+    browser.save_screenshot(str(SHOTS / "fibre-butyrate.png"))
+    assert (SHOTS / "fibre-butyrate.png").stat().st_size > 10_000
+    flags = browser.find_elements("css selector", "p.status .flag")
+    assert {f.text.split(" ", 1)[0] for f in flags} >= {"✔", "⚠"}  # ok/clean and not registered
+    pdf = base64.b64decode(browser.execute_cdp_cmd("Page.printToPDF", {"preferCSSPageSize": True})["data"])
+    (SHOTS / "fibre-butyrate.pdf").write_bytes(pdf)
+    pages_printed = len(re.findall(rb"/Type\s*/Page[^s]", pdf))
+    assert 2 <= pages_printed <= 5  # a small spec prints in about four A4 pages
+    pdftotext = shutil.which("pdftotext")
+    if pdftotext is None:
+        if os.environ.get("CI"):
+            pytest.fail("pdftotext (poppler-utils) is needed in CI to read the printed header back")
+        pytest.skip("pdftotext is not installed; the running header cannot be read back")
+    text = subprocess.run([pdftotext, "-layout", str(SHOTS / "fibre-butyrate.pdf"), "-"], capture_output=True,
+                          text=True, check=True).stdout
+    sheets = [sheet for sheet in text.split("\f") if sheet.strip()]
+    assert len(sheets) == pages_printed
+    for number, sheet in enumerate(sheets, start=1):
+        assert "fibre-butyrate" in sheet.splitlines()[0], f"page {number} has no running header"
+        assert f"page {number} of {pages_printed}" in sheet
+
+
+def test_narrow_screen_reads_without_sideways_scrolling(browser, pages):
+    browser.set_window_size(400, 900)
+    try:
+        browser.get((pages / "fibre-butyrate.html").as_uri())
+        wide = browser.execute_script("return document.documentElement.scrollWidth")
+        inner = browser.execute_script("return window.innerWidth")
+        browser.save_screenshot(str(SHOTS / "fibre-butyrate-400px.png"))
+        assert wide <= inner + 1
+    finally:
+        browser.set_window_size(1280, 1600)
+
+
+def test_site_index_filters_by_status_and_verdict(browser, pages):
+    from selenium.webdriver.support.ui import Select
+
+    browser.get((pages / "index.html").as_uri())
+    assert _severe(browser) == [] and _local_only(browser) == []
+    rows = browser.find_elements("css selector", "tbody tr")
+    visible = lambda: [r for r in rows if r.is_displayed()]  # noqa: E731
+    assert len(visible()) == len(rows)
+    Select(browser.find_element("name", "verdict")).select_by_value("bad")
+    bad = visible()
+    assert bad and len(bad) < len(rows) and all("✖" in r.text for r in bad)
+    browser.save_screenshot(str(SHOTS / "index-filtered.png"))
+    Select(browser.find_element("name", "verdict")).select_by_value("")
+    Select(browser.find_element("name", "status")).select_by_value("planned")
+    assert visible() and all(" planned " in f" {r.text} " for r in visible())
+    assert "shown" in browser.find_element("css selector", ".filters output").text
+    assert _severe(browser) == []

@@ -40,7 +40,7 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
           history: bool = True, workers: int = 1) -> int:
     """Check every spec under ``paths``; 0 when no error finding, 1 otherwise."""
     from ..audit import add_history
-    from ..checks import CAUTION, check_files
+    from ..checks import CAUTION, check_registry, skipped_line
     from ..config import config_loader
     from ..report import console, print_findings, print_table, summary_line, to_json
 
@@ -51,23 +51,27 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
     files = discover(paths)
     config_errors: list[str] = []
     config_for = config_loader(config_errors, oversize_margin)
+    reports: list[SpecReport]
     if workers > 1:
         from concurrent.futures import ProcessPoolExecutor
 
         with ProcessPoolExecutor(workers) as pool:
-            reports: list[SpecReport] = check_files(files, config_for, pool)
+            files, reports, skipped = check_registry(files, config_for, pool)
     else:
-        reports = check_files(files, config_for)
+        files, reports, skipped = check_registry(files, config_for)
     status = add_history(reports, files, paths, config_for) if history else None
     failed = any(r.has_errors for r in reports) or bool(config_errors) or bool(status and status.problems)
     if as_json:
         extra: dict[str, object] = {"config_errors": config_errors} if config_errors else {}
+        extra["skipped"] = skipped
         extra["history"] = status.to_dict() if status else {"checked": False, "message": "skipped (--no-history)"}
         print(to_json(reports, extra))
         return 1 if failed else 0
     out = console()
     for error in config_errors:
         print(plain_text(error), file=sys.stderr)
+    if skipped:
+        print(skipped_line(skipped), file=sys.stderr)
     if not reports:
         out.print(plain_text(f"No spec files (*.yaml, *.yml) found under {', '.join(paths)}."))
         return 0

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import json
 import sys
 
 from ..problems import plain_text
@@ -16,13 +17,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("spec", metavar="ID|FILE", help="a spec file, or the id of a spec under PATH")
     parser.add_argument("paths", nargs="*", metavar="PATH", help="where to look for an id (default: .)")
     parser.add_argument("--canonical", action="store_true", help="also print the canonical JSON that is hashed")
+    parser.add_argument("--json", action="store_true", help="print the hash (and the canonical JSON) as JSON")
 
 
 def run(args: argparse.Namespace) -> int:
-    return hash(args.spec, args.paths or ["."], canonical=args.canonical)
+    return hash(args.spec, args.paths or ["."], canonical=args.canonical, as_json=args.json)
 
 
-def hash(target: str, paths: list[str], *, canonical: bool = False) -> int:  # noqa: A001 - command name
+def hash(target: str, paths: list[str], *, canonical: bool = False,  # noqa: A001 - command name
+         as_json: bool = False) -> int:
     from ..audit import find_spec
     from ..canonical import canonical_json, content_hash
 
@@ -34,6 +37,11 @@ def hash(target: str, paths: list[str], *, canonical: bool = False) -> int:  # n
             print(plain_text(f"  {where}: {finding.field + ': ' if finding.field else ''}{finding.message}"),
                   file=sys.stderr)
         return 1
+    if as_json:
+        payload = {"id": report.spec.id, "path": report.path, "sha256": content_hash(report.spec),
+                   "canonical": canonical_json(report.spec) if canonical else None}
+        print(json.dumps(payload, indent=2, ensure_ascii=False))
+        return 0
     if canonical:
         print(canonical_json(report.spec))
     print(plain_text(f"{content_hash(report.spec)}  {report.spec.id}  {report.path}"))

@@ -77,8 +77,13 @@ def history(target: str, paths: list[str], *, as_json: bool = False) -> int:
         print(plain_text(f"Verdict: unreadable (run 'git fsck' in {repo.root})"), file=sys.stderr)
         return 1
     if spec_file is None and not spec_history.revisions:
+        from ..checks import check_files
+        from ..discovery import discover
+        from ..hints import id_hint
+
+        hint = id_hint(target, [r.id for r in check_files(discover(paths)) if r.id])
         raise UsageError(f"no spec with id {target!r} under {', '.join(paths)} and none in the git history of "
-                         f"{repo.root} (give the id of a spec, or a spec file)")
+                         f"{repo.root}{hint} (give the id of a spec, or a spec file)")
     failed = spec_history.verdict in FAILING
     if as_json:
         payload = spec_history.to_dict()
@@ -102,7 +107,7 @@ def _print(spec_history: SpecHistory, tags: list[str]) -> None:
     out = console()
     table = Table(show_edge=False, header_style="bold", pad_edge=False)
     for column in ("date", "commit", "author", "field", "change", "when", "status"):
-        table.add_column(column)
+        table.add_column(column, overflow="fold")  # a long path or value wraps, never cut
     for revision in spec_history.revisions:
         commit = revision.commit
         when = "after start" if revision.after_start else "before start"
@@ -122,9 +127,10 @@ def _print(spec_history: SpecHistory, tags: list[str]) -> None:
                 status = Text("amended", style="cyan")
             else:
                 status = Text("DRIFT", style="bold red")
-            table.add_row(*common, plain(change.field), plain(show_change(change.old, change.new)), when, status)
+            width = 1000 if change.field == "amendments" else 60  # an amendment is read in full
+            table.add_row(*common, plain(change.field), plain(show_change(change.old, change.new, width)), when, status)
     out.print(plain(f"History of {spec_history.id} (data collection starts {spec_history.start or 'unknown'}; "
-                    f"{len(spec_history.revisions)} commit(s)):"))
+                    f"{len(spec_history.revisions)} commit{'s' if len(spec_history.revisions) != 1 else ''}):"))
     out.print(table)
     for finding in spec_history.findings:
         if finding.kind != "amended":

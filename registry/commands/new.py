@@ -9,6 +9,7 @@ from datetime import date, timedelta
 from pathlib import Path
 
 from ..discovery import UsageError
+from ..hints import normalised_id
 from ..fsutil import WriteRefused, confined, write_atomic
 from ..problems import plain_text
 
@@ -21,14 +22,18 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     from ..power.catalog import family_names
 
     parser.add_argument("id", metavar="ID", help="the spec id: lowercase letters, digits and hyphens")
-    parser.add_argument("--dir", default=".", metavar="DIR", help="registry folder to write ID.yaml into")
+    parser.add_argument("path", nargs="?", default=None, metavar="PATH",
+                        help="registry folder to write ID.yaml into (default: the current folder)")
+    parser.add_argument("--dir", default=None, metavar="DIR", help=argparse.SUPPRESS)
     parser.add_argument("--test", default="two-sample-t", metavar="FAMILY",
                         help=f"design family (default two-sample-t); one of: {', '.join(family_names())}")
     parser.add_argument("--title", default=None, help="the experiment's title")
 
 
 def run(args: argparse.Namespace) -> int:
-    return new(args.id, folder=args.dir, test=args.test, title=args.title)
+    if args.path is not None and args.dir is not None and args.path != args.dir:
+        raise UsageError(f"give the folder once: {args.path} or --dir {args.dir}")
+    return new(args.id, folder=args.path or args.dir or ".", test=args.test, title=args.title)
 
 
 def _schema_reference(folder: Path) -> str:
@@ -50,13 +55,34 @@ def _yaml_scalar(value: object) -> str:
     return repr(value)
 
 
+def _alternative_line(test: str, effect: dict[str, object]) -> str:
+    """The template's ``alternative`` line, or a comment where the family takes no explicit one."""
+    from ..power import design_from_params, get_family, solve_sample_size
+    from ..power.base import InfeasibleDesign
+
+    family = get_family(test)
+    try:
+        solve_sample_size(design_from_params(test, **effect, alternative="two-sided", attrition=0.1))
+    except InfeasibleDesign as error:
+        if error.field == "design.alternative":
+            return f"  # no 'alternative' here: the test is {family.sides(design_from_params(test, **effect))}\n"
+        raise
+    if family.undirected is not None:
+        return f"  alternative: two-sided   # the {family.undirected} test has no sides; keep two-sided\n"
+    return "  alternative: two-sided   # or greater / less for a one-sided test\n"
+
+
 def template(spec_id: str, test: str, title: str | None, schema_ref: str, today: date | None = None) -> str:
     from ..power import design_from_params, get_family, solve_sample_size
+    from ..power.verify import needs_verification, verified_sample_size
 
     family = get_family(test)
     start = (today or date.today()) + timedelta(days=90)
     effect = dict(family.example)
-    planned = solve_sample_size(design_from_params(test, **effect, attrition=0.1)).enrolment_per_group
+    design = design_from_params(test, **effect, attrition=0.1)
+    # the same size check recomputes: simulation-verified where the family's formula is an approximation
+    sample = verified_sample_size(design) if needs_verification(design) else solve_sample_size(design)
+    planned = sample.enrolment_per_group
     effect_lines = "\n".join(f"    {key}: {_yaml_scalar(value)}" for key, value in effect.items())
     shown_title = title or f"Title of the {spec_id} experiment"
     return f"""# yaml-language-server: $schema={schema_ref}
@@ -80,8 +106,7 @@ data_collection:
   start: {start.isoformat()}      # first day of data collection
 design:
   test: {test}           # {family.title}
-  alternative: two-sided
-  alpha: 0.05
+{_alternative_line(test, effect)}  alpha: 0.05
   power: 0.8
   effect:                # replace with your smallest effect of interest
 {effect_lines}
@@ -105,7 +130,9 @@ def new(spec_id: str, *, folder: str = ".", test: str = "two-sample-t", title: s
     from ..power.catalog import UnknownFamily, get_family
 
     if not re.fullmatch(ID_PATTERN, spec_id) or len(spec_id) > 64:
-        raise UsageError(f"id must be lowercase letters, digits and single hyphens (at most 64); got {spec_id!r}")
+        fixed = normalised_id(spec_id)
+        hint = f"; did you mean {fixed!r}?" if fixed else ""
+        raise UsageError(f"id must be lowercase letters, digits and single hyphens (at most 64); got {spec_id!r}{hint}")
     try:
         get_family(test)
     except UnknownFamily as error:

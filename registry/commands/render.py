@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import argparse
-import difflib
+import json
 import os
 import sys
 from pathlib import Path
@@ -11,6 +11,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from ..discovery import UsageError, discover
+from ..hints import id_hint
 from ..fsutil import WriteRefused, confined, write_atomic
 from ..problems import plain_text
 
@@ -18,7 +19,7 @@ if TYPE_CHECKING:
     from datetime import datetime
 
     from ..checks import SpecReport
-    from ..summary import Summary
+    from ..summary import IndexRow, Summary
 
 __all__ = ["render", "HELP", "add_arguments", "run"]
 
@@ -33,23 +34,35 @@ def _own_markers() -> dict[str, str]:
         ".md": "[//]: # (prespec ",
         ".html": '<meta name="generator" content="prespec ',
         ".svg": SVG_MARKER,
+        ".js": "// prespec ",
     }
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("spec_id", nargs="?", metavar="ID", help="id of the spec to render")
+    parser.add_argument("spec_id", nargs="?", metavar="ID", help="id of the spec to render (none with --all)")
+    parser.add_argument("paths", nargs="*", metavar="PATH",
+                        help="registry folders or spec files to search (default: the current folder)")
     parser.add_argument("--all", action="store_true", help="render every valid spec and an index.html")
     parser.add_argument("--out", metavar="DIR", default=None,
-                        help="folder to write into (default: the current folder; required with --all)")
-    parser.add_argument("--registry", metavar="PATH", action="append", default=None,
-                        help="registry folder or spec file to search; repeat for several (default: the current folder)")
+                        help="folder to write the Markdown, HTML and figure into (required with --all); "
+                        "without it, one spec's Markdown summary is printed and nothing is written")
+    parser.add_argument("--registry", metavar="PATH", action="append", default=None, help=argparse.SUPPRESS)
     parser.add_argument("--no-history", action="store_true",
                         help="do not read git history (the drift verdict then says 'history not checked')")
+    parser.add_argument("--json", action="store_true",
+                        help="print what was rendered as JSON (with the Markdown when nothing is written)")
 
 
 def run(args: argparse.Namespace) -> int:
-    return render(args.spec_id, all_specs=args.all, out=args.out, registry=args.registry or ["."],
-                  history=not args.no_history)
+    spec_id, paths = args.spec_id, list(args.paths)
+    if args.all and spec_id is not None:  # with --all there is no ID: the first word is a PATH
+        if not os.path.lexists(spec_id):
+            raise UsageError(f"give a spec ID, or --all (with --out DIR), but not both: with --all every word "
+                             f"is a registry PATH, and there is no file or folder {spec_id!r}")
+        spec_id, paths = None, [spec_id, *paths]
+    registry = paths + (args.registry or [])
+    return render(spec_id, all_specs=args.all, out=args.out, registry=registry or ["."],
+                  history=not args.no_history, as_json=args.json)
 
 
 def _renderable(report: SpecReport) -> bool:
@@ -151,17 +164,19 @@ def _build_summary(index: int, *, rendered_at: datetime, index_link: bool) -> Su
 
 
 def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = None,
-           registry: list[str] | None = None, history: bool = True) -> int:
+           registry: list[str] | None = None, history: bool = True, as_json: bool = False) -> int:
     """Render one spec (by id) or all; 0 when everything asked for was written, 1 otherwise."""
     from ..audit import add_history
-    from ..checks import CAUTION, check_files
+    from ..checks import CAUTION, check_registry, skipped_line
     from ..config import config_loader
     from ..summary import IndexRow, build_index, render_time
+    from ..summary.htmlpage import SITE_SCRIPT, SITE_SCRIPT_NAME
 
     if all_specs == (spec_id is not None):
         raise UsageError("give a spec ID, or --all (with --out DIR), but not both")
     if all_specs and out is None:
-        raise UsageError("--all needs --out DIR: the folder for the summaries and index.html")
+        raise UsageError("--all needs --out DIR: the folder for the summaries and index.html (outside the "
+                         "registry, e.g. --out summaries)")
     folder = Path(out if out is not None else ".")
     if folder.exists() and not folder.is_dir():
         raise UsageError(f"--out {out}: is a file, not a folder")
@@ -170,7 +185,9 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     config_errors: list[str] = []
     spec_files = discover(registry)
     config_for = config_loader(config_errors)
-    reports = check_files(spec_files, config_for)
+    spec_files, reports, skipped = check_registry(spec_files, config_for)
+    if skipped and all_specs:
+        print(skipped_line(skipped), file=sys.stderr)
     if history:
         add_history(reports, spec_files, registry, config_for)
     for error in config_errors:
@@ -179,8 +196,7 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
         chosen = [r for r in reports if r.id == spec_id]
         if not chosen:
             known = sorted({r.id for r in reports if r.id})
-            close = difflib.get_close_matches(spec_id, known, n=1)
-            hint = f"; did you mean {close[0]!r}?" if close else ""
+            hint = id_hint(spec_id, known)
             listing = f" Ids found: {', '.join(known)}." if known else " No specs were found there."
             raise UsageError(f"no spec with id {spec_id!r} under {', '.join(registry)}{hint}{listing}")
         if len(chosen) > 1:
@@ -205,15 +221,55 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
         rows.append(IndexRow(report, f"{summary.spec_id}.html"))
     if all_specs:
         index_md, index_html = build_index(rows, rendered_at)
-        files.update({"index.md": index_md, "index.html": index_html})
+        files.update({SITE_SCRIPT_NAME: SITE_SCRIPT, "index.md": index_md, "index.html": index_html})
+    if out is None:  # nothing is written: the registry stays as it is
+        return _print_unwritten(rows, files, as_json, failed)
     try:
         written = _write(folder, files)
     except (WriteRefused, OSError) as error:
         print(plain_text(f"prespec: error: {error}"), file=sys.stderr)
         return 1
+    if as_json:
+        _print_json(rows, written, folder)
+        return 1 if failed or config_errors else 0
     pages = [p for p in written if p.suffix == ".html"]
     for path in pages:
         print(plain_text(f"wrote {path}"))
     print(plain_text(f"{len(written)} file{'s' if len(written) != 1 else ''} written to {folder}."))
     print(f"Note: {CAUTION}")
     return 1 if failed or config_errors else 0
+
+
+def _row_json(row: IndexRow) -> dict[str, object]:
+    from ..summary import drift_verdict
+
+    report = row.report
+    return {"id": report.id, "path": report.path, "verdict": report.verdict,
+            "drift": drift_verdict(report) if report.spec is not None else None, "page": row.page}
+
+
+def _print_json(rows: list[IndexRow], written: list[Path], folder: Path | None,
+                markdown: dict[str, str] | None = None) -> None:
+    from ..checks import CAUTION
+
+    specs = [_row_json(row) for row in rows]
+    if markdown is not None:
+        for spec in specs:
+            spec["markdown"] = markdown.get(f"{spec['id']}.md")
+    payload = {"out": None if folder is None else str(folder), "written": [str(p) for p in written],
+               "specs": specs, "caution": CAUTION}
+    print(json.dumps(payload, indent=2, ensure_ascii=False))
+
+
+def _print_unwritten(rows: list[IndexRow], files: dict[str, str], as_json: bool, failed: bool) -> int:
+    """One spec without --out: its Markdown summary on standard output, no file written."""
+    from ..checks import CAUTION
+
+    if as_json:
+        _print_json(rows, [], None, markdown=files)
+        return 1 if failed else 0
+    for name, text in files.items():
+        if name.endswith(".md"):
+            sys.stdout.write(text if text.endswith("\n") else text + "\n")
+    print(f"(nothing written; add --out DIR for the HTML page and figure) Note: {CAUTION}", file=sys.stderr)
+    return 1 if failed else 0

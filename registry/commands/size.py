@@ -80,6 +80,16 @@ def _per_group(text: str) -> int:
     return value
 
 
+def _alternative(text: str) -> str:
+    from ..power.synonyms import ALTERNATIVE_SYNONYMS, hint
+
+    options = ("two-sided", "greater", "less")
+    if text in options:
+        return text
+    raise argparse.ArgumentTypeError(f"must be two-sided, greater or less; got {text!r}"
+                                     f"{hint(text, options, ALTERNATIVE_SYNONYMS)}")
+
+
 def _scalar(text: str) -> Any:
     lowered = text.strip().lower()
     if lowered in ("true", "yes"):
@@ -111,25 +121,92 @@ def parse_param(text: str) -> tuple[str, Any]:
     return name, _scalar(raw)
 
 
+def _kind_of(annotation: Any) -> str:
+    text = str(annotation)
+    if "list[" in text:
+        return "list"
+    if text.startswith("<class 'bool'>"):
+        return "bool"
+    if "int" in text.replace("Literal", "") and "float" not in text:
+        return "whole"
+    if "float" in text:
+        return "number"
+    return "text"
+
+
+def _spec_field_options() -> list[tuple[str, str, str, str]]:
+    """(option, parameter name, kind, help) for every effect field of every family and every numeric
+    field of the design and its cluster and multiplicity blocks, named as the spec names them
+    (``allocation_ratio`` -> ``--allocation-ratio``, ``cluster.icc`` -> ``--cluster-icc``)."""
+    from ..power.base import Cluster, DesignBase, Multiplicity
+    from ..power.catalog import FAMILIES
+
+    taken = {option for option, *_ in _EFFECT_OPTIONS} | {"--alpha", "--power", "--alternative", "--n",
+                                                         "--distribution", "--seed", "--simulate", "--json"}
+    fields: dict[str, tuple[str, str, list[str]]] = {}
+    for family in FAMILIES:
+        for name, info in family.effect_model.model_fields.items():
+            entry = fields.setdefault(name, (_kind_of(info.annotation), info.description or "", []))
+            entry[2].append(family.name)
+    for name in ("allocation_ratio", "attrition"):
+        info = DesignBase.model_fields[name]
+        fields[name] = (_kind_of(info.annotation), info.description or "", [])
+    for block, model in (("cluster", Cluster), ("multiplicity", Multiplicity)):
+        for name, info in model.model_fields.items():
+            fields[f"{block}.{name}"] = (_kind_of(info.annotation), info.description or "", [])
+    out = []
+    for name, (kind, description, families) in fields.items():
+        option = "--" + name.replace("_", "-").replace(".", "-")
+        if option in taken:
+            continue
+        text = description.split(". ")[0].rstrip(".")
+        if families and len(families) < 4:
+            text += f" ({', '.join(families)})"
+        out.append((option, name, kind, text.replace("%", "%%")))
+    return out
+
+
+def _bool(text: str) -> bool:
+    lowered = text.strip().lower()
+    if lowered in ("true", "yes"):
+        return True
+    if lowered in ("false", "no"):
+        return False
+    raise argparse.ArgumentTypeError(f"must be true or false; got {text!r}")
+
+
+def _list(text: str) -> Any:
+    return parse_param(f"x={text}")[1]
+
+
+_PARSERS: dict[str, Callable[[str], Any]] = {"number": _number, "whole": _whole, "bool": _bool, "list": _list,
+                                              "text": str}
+_METAVARS = {"number": "X", "whole": "N", "bool": "yes|no", "list": "X,Y,...", "text": "NAME"}
+
+
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     from ..power.assumptions import DEFAULT_REPS, DEFAULT_SEED
     from ..power.catalog import family_names
 
-    parser.add_argument("test", metavar="TEST", help=f"design family, one of: {', '.join(family_names())}")
+    parser.add_argument("test", metavar="TEST", nargs="?", default=None,
+                        help=f"design family, one of: {', '.join(family_names())}")
     effect = parser.add_argument_group("effect (give the ones your design family uses)")
     for option, name, kind, text in _EFFECT_OPTIONS:
         effect.add_argument(option, dest=f"effect_{name}", type=_whole if kind == "whole" else _number,
                             default=None, metavar=name.upper(), help=text)
+    fields = parser.add_argument_group("other spec fields (named as in the spec; see docs/spec-format.md)")
+    for option, name, kind, text in _spec_field_options():
+        aliases = (option, "--ratio") if name == "allocation_ratio" else (option,)
+        fields.add_argument(*aliases, dest=f"field_{name}", type=_PARSERS[kind], default=None,
+                            metavar=_METAVARS[kind], help=text)
     effect.add_argument("--param", action="append", type=parse_param, default=[], metavar="NAME=VALUE",
-                        help="any other design or effect field, e.g. --param sd1=4 --param attrition=0.1 "
-                        "(repeatable; see docs/spec-format.md for each family's fields)")
+                        help="any design or effect field by its spec name, e.g. --param sd1=4 "
+                        "--param simulation.baseline_mean=3 (repeatable)")
     design = parser.add_argument_group("design")
     design.add_argument("--alpha", type=_number, default=None, help="significance level (default 0.05)")
     design.add_argument("--power", type=_number, default=None, help="target power (default 0.8)")
-    design.add_argument("--alternative", choices=("two-sided", "greater", "less"), default=None,
+    design.add_argument("--alternative", type=_alternative, default=None, metavar="{two-sided,greater,less}",
                         help="direction of the alternative (default two-sided)")
-    design.add_argument("--ratio", type=_number, default=None, metavar="N2_OVER_N1",
-                        help="two-group designs: n2 / n1 (default 1)")
     design.add_argument("--n", type=_per_group, default=None, metavar="N",
                         help="report the power at N analysable units per group and the smallest detectable "
                         "effect there, instead of the sample size")
@@ -154,7 +231,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     seq.add_argument("--assurance-target", type=_number, default=None, metavar="A",
                      help="also find the n whose assurance reaches A")
     sim = parser.add_argument_group("simulation")
-    sim.add_argument("--simulate", type=_whole, nargs="?", const=DEFAULT_REPS, default=None, metavar="REPS",
+    sim.add_argument("--simulate", nargs="?", const=str(DEFAULT_REPS), default=None, metavar="REPS",
                      help=f"also estimate the power by simulating REPS experiments (default {DEFAULT_REPS:,})")
     sim.add_argument("--seed", type=_whole, default=None, help=f"seed of the simulation (default {DEFAULT_SEED})")
     sim.add_argument("--distribution", default=None, metavar="SHAPE",
@@ -165,33 +242,52 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
 
 
+def _simulate_and_test(args: argparse.Namespace) -> tuple[str, int | None]:
+    """``--simulate`` takes an optional REPS: a family name after it is the family, not REPS."""
+    from ..power.assumptions import DEFAULT_REPS
+    from ..power.catalog import family_names
+
+    test, simulate = args.test, args.simulate
+    if simulate is not None and not _INT_RE.match(simulate.strip()):
+        if test is not None:
+            raise UsageError(f"--simulate REPS must be a whole number; got {simulate!r}")
+        test, simulate = simulate, str(DEFAULT_REPS)
+    if test is None:
+        raise UsageError(f"name the design family: prespec size TEST ..., one of {', '.join(family_names())}")
+    return test, None if simulate is None else int(simulate)
+
+
 def run(args: argparse.Namespace) -> int:
     from ..power.assumptions import DEFAULT_REPS, MAX_REPS
 
+    test, simulate = _simulate_and_test(args)
     params: dict[str, Any] = {}
     for _option, name, _kind, _text in _EFFECT_OPTIONS:
         value = getattr(args, f"effect_{name}")
         if value is not None:
             params[name] = value
+    for _option, name, _kind, _text in _spec_field_options():
+        value = getattr(args, f"field_{name}")
+        if value is not None:
+            params[name] = value
     for name, value in args.param:
-        if name in params:
+        if name in params or (name == "ratio" and "allocation_ratio" in params):
             raise UsageError(f"{name} is given twice; give it once")
         params[name] = value
-    for name in ("alpha", "power", "alternative", "ratio"):
+    for name in ("alpha", "power", "alternative"):
         value = getattr(args, name)
         if value is not None:
             if name in params:
                 raise UsageError(f"{name} is given both as --{name} and as --param; give it once")
             params[name] = value
     _staged_params(args, params)
-    simulate = args.simulate
     if simulate is not None and not 100 <= simulate <= MAX_REPS:
         raise UsageError(f"--simulate REPS must be between 100 and {MAX_REPS:,}; got {simulate}")
     if simulate is None and (args.seed is not None or args.distribution is not None):
         simulate = DEFAULT_REPS  # --seed or --distribution alone ask for a simulation
     if not 1 <= args.workers <= 1024:
         raise UsageError(f"--workers must be between 1 and 1024; got {args.workers}")
-    return size(args.test, params, n=args.n, as_json=args.json, simulate=simulate, seed=args.seed,
+    return size(test, params, n=args.n, as_json=args.json, simulate=simulate, seed=args.seed,
                 distribution=args.distribution, workers=args.workers)
 
 
@@ -412,6 +508,12 @@ def _effect_line(design: DesignBase, result: SampleSize | PowerAtN) -> str:
 
 
 def _fmt(value: Any) -> str:
+    if hasattr(value, "model_dump"):  # a nested block (cluster, multiplicity): its fields in words
+        value = value.model_dump(exclude_none=True)
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, dict):
+        return ", ".join(f"{k.replace('_', ' ')} {_fmt(v)}" for k, v in value.items() if v is not None)
     if isinstance(value, float):
         return _g(value)
     if isinstance(value, (list, tuple)):
@@ -420,7 +522,7 @@ def _fmt(value: Any) -> str:
 
 
 def _assumptions(design: DesignBase, groups: int) -> str:
-    parts = [f"alpha {design.alpha:g}", design.alternative, f"target power {design.power:g}"]
+    parts = [f"alpha {design.alpha:g}", design.family.sides(design), f"target power {design.power:g}"]
     if groups == 2:
         parts.append(f"allocation n2/n1 = {design.allocation_ratio:g}")
     for name in sorted(design.model_fields_set - _DESIGN_LABELS):
@@ -438,6 +540,46 @@ def _sizes(sizes: tuple[int, ...], unit: str) -> str:
         (" + ..." if len(sizes) > 2 else "") + ")"
 
 
+def _enrolment(design: DesignBase, result: SampleSize) -> str:
+    """The enrolment the solver returned, clusters in words: "110 per group: 11 clusters of 10, ..."."""
+    from ..power import enrolment
+
+    why = [f"for {design.attrition:.0%} attrition"] if design.attrition > 0 else []
+    if result.clusters_per_group:
+        why.append("rounded up to whole clusters")
+        enrolled = tuple(c * (result.cluster_size or 1) for c in result.clusters_per_group)
+    else:
+        enrolled = tuple(enrolment(g, design.attrition) for g in result.group_sizes)
+    text = result.enrolment_words() if len(set(enrolled)) == 1 else _sizes(enrolled, result.unit)
+    if len(enrolled) > 1 and len(set(enrolled)) == 1:
+        text += f" x {len(enrolled)} groups = {sum(enrolled):,} in total"
+    return text + (", " + " and ".join(why) if why else "")
+
+
+def _events(design: DesignBase, result: SampleSize | PowerAtN) -> str:
+    """Events, saying how they are rounded and how they relate to the analysable units."""
+    from ..power import PowerAtN
+
+    family = design.family
+    tested = design.as_tested()
+    expected = family.expected_events(tested, result.n_per_group, result.effect_size)
+    expected_text = "" if expected is None else (
+        f"; the {result.n_total:,} analysable units are expected to give {float(expected):.1f}")
+    if isinstance(result, PowerAtN):
+        exact = "" if expected is None else f" ({float(expected):.1f} before rounding)"
+        return f"{result.events:,} expected from the {result.n_total:,} analysable units{exact}"
+    needed = family.required_events(tested, result.effect_size)
+    if getattr(result, "verification", None) is not None and expected is not None:
+        # the simulation-verified n sets the events: those its analysable units are expected to give
+        formula = "" if needed is None else (
+            f"; the formula alone asks for {float(needed) * design.design_effect:.1f}, the starting point of the "
+            "simulation search")
+        return (f"{result.events:,} to observe before the analysis (the {result.n_total:,} analysable units are "
+                f"expected to give {float(expected):.1f}, rounded up){formula}")
+    exact = "" if needed is None else f" ({float(needed) * design.design_effect:.1f} by the formula, rounded up)"
+    return f"{result.events:,} to observe before the analysis{exact}{expected_text}"
+
+
 def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: SimulatedPower | None,
                  staged_rows: list[tuple[str, str]] = ()) -> None:
     from ..checks import CAUTION
@@ -450,11 +592,13 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
     rows.append(("effect", _effect_line(design, result)))
     rows.append(("assumptions", _assumptions(design, len(result.group_sizes))))
     rows.append(("analysable", _sizes(result.group_sizes, result.unit)))
-    if design.attrition > 0:
+    if isinstance(result, SampleSize) and (result.enrolment_total != result.n_total):
+        rows.append(("enrol", _enrolment(design, result)))
+    elif design.attrition > 0:  # power at a given n: the n is what remains after attrition
         enrolled = tuple(enrolment(g, design.attrition) for g in result.group_sizes)
         rows.append(("enrol", f"{_sizes(enrolled, result.unit)}, for {design.attrition:.0%} attrition"))
     if result.events is not None:
-        rows.append(("events", f"{result.events:,}"))
+        rows.append(("events", _events(design, result)))
     if isinstance(result, SampleSize):
         rows.append(("power", f"{result.achieved_power:.4f} ({_label(result)}; the smallest n reaching "
                               f"{result.target_power:g})"))

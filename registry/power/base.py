@@ -311,6 +311,9 @@ class DesignBase(BaseModel):
         return self.model_copy(update={"alpha": self.effective_alpha, "multiplicity": None})
 
 
+_SIDES = {"two-sided": "two-sided", "greater": "one-sided (an increase)", "less": "one-sided (a decrease)"}
+
+
 class Family(ABC):
     """One design family: power at n, the smallest n reaching a target, and effect conversion.
 
@@ -353,6 +356,9 @@ class Family(ABC):
     example: ClassVar[dict[str, Any]] = {}
     #: Set by the catalog: the spec's design model for this family.
     design_model: ClassVar[type[DesignBase]]
+    #: The statistic of a test that rejects for large values only ("F", "chi-square"): such a test
+    #: has no sides, and :meth:`sides` says so instead of "two-sided".
+    undirected: ClassVar[str | None] = None
 
     @abstractmethod
     def effect_size(self, design: DesignBase) -> float:
@@ -403,6 +409,13 @@ class Family(ABC):
     def alternative_for(self, design: DesignBase) -> str:
         """How the results describe the alternative (families with a fixed direction override)."""
         return design.alternative
+
+    def sides(self, design: DesignBase) -> str:
+        """The test's sides in words, for people: "two-sided", "one-sided (an increase)", "F test, no sides"."""
+        if self.undirected is not None:
+            return f"{self.undirected} test, no sides"
+        alternative = self.alternative_for(design)
+        return _SIDES.get(alternative, alternative)
 
     def notes(self, design: DesignBase) -> tuple[str, ...]:
         """Family-specific caveats carried into the results."""

@@ -2,12 +2,12 @@
 
 from __future__ import annotations
 
-import difflib
 from typing import Annotated, Literal, Union
 
 from pydantic import Field, create_model
 
 from .base import DesignBase, Family, locked
+from .synonyms import FAMILY_SYNONYMS, hint
 from .chi_square import ChiSquare
 from .correlation import Correlation
 from .linear_regression import LinearRegression
@@ -54,9 +54,9 @@ class UnknownFamily(ValueError):
     def __init__(self, name: object) -> None:
         self.name = name
         known = ", ".join(family_names())
-        close = difflib.get_close_matches(str(name), family_names(), n=1, cutoff=0.6)
-        hint = f"; did you mean {close[0]!r}?" if close else "."
-        super().__init__(f"{name!r} is not a known design family{hint} Known families: {known}")
+        found = hint(name, family_names(), FAMILY_SYNONYMS)
+        hint_text = found + ("" if found.endswith("?") else ".")
+        super().__init__(f"{name!r} is not a known design family{hint_text} Known families: {known}")
 
 
 def family_names() -> list[str]:

@@ -45,6 +45,7 @@ class ChiSquare(Family):
     name = "chi-square"
     exact = False  # the noncentral chi-square is the large-sample distribution of the statistic
     title = "Chi-square test (goodness of fit or contingency table)"
+    undirected = "chi-square"
     method = "noncentral chi-square approximation, lambda = w^2 N"
     reference = (
         "Cohen, J. (1988). Statistical Power Analysis for the Behavioral Sciences (2nd ed.), chapter 7. "

@@ -104,6 +104,7 @@ class LinearRegression(Family):
 
     name = "linear-regression"
     title = "Multiple linear regression (F test of R-squared)"
+    undirected = "F"
     method = ("power of the F test, df = (u, N - p - 1): noncentral F with lambda = f^2 N for fixed predictors, "
               "averaged over lambda = f^2 W, W chi-square with N - 1 - (p - u) df, for random predictors")
     reference = (

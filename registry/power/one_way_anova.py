@@ -74,6 +74,7 @@ class OneWayAnova(Family):
 
     name = "one-way-anova"
     title = "One-way ANOVA (F test, equal group sizes)"
+    undirected = "F"
     method = "exact power from the noncentral F distribution, lambda = f^2 N, df = (k - 1, N - k)"
     reference = (
         "Cohen, J. (1988). Statistical Power Analysis for the Behavioral Sciences (2nd ed.), "

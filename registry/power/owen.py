@@ -6,7 +6,8 @@ import math
 
 import numpy as np
 from scipy import special
-from .lazy import stats  # loaded on first use
+
+from .lazy import stats  # used by the doctest; loaded on first use
 
 __all__ = ["owens_q", "tost_power"]
 

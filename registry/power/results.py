@@ -5,7 +5,21 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
-__all__ = ["SampleSize", "PowerAtN"]
+__all__ = ["SampleSize", "PowerAtN", "power_text"]
+
+
+def power_text(power: float, target: float, digits: int = 3) -> str:
+    """``power`` with ``digits`` decimals, or more where fewer would print a power below ``target``
+    as the target or above it (0.7996 is "0.7996", never "0.800", against a target of 0.8).
+
+    >>> power_text(0.80146, 0.8), power_text(0.79962, 0.8), power_text(0.5, 0.8)
+    ('0.801', '0.7996', '0.500')
+    """
+    text = f"{power:.{digits}f}"
+    while power < target and float(text) >= target and digits < 12:
+        digits += 1
+        text = f"{power:.{digits}f}"
+    return text
 
 
 @dataclass(frozen=True, repr=False)
@@ -53,6 +67,20 @@ class SampleSize:
             f"SampleSize(test={self.test!r}, n_per_group={self.n_per_group}, n_total={self.n_total}"
             f"{events}{clusters}, achieved_power={self.achieved_power:.4f})"
         )
+
+    def enrolment_words(self) -> str:
+        """Enrolment as people say it, with whole clusters where the design has them.
+
+        >>> from registry.power import design_from_params, solve_sample_size
+        >>> solve_sample_size(design_from_params("two-sample-t", d=0.5, attrition=0.1,
+        ...                   cluster={"size": 10, "icc": 0.05})).enrolment_words()
+        '130 per group: 13 clusters of 10'
+        """
+        text = f"{self.enrolment_per_group:,} {self.unit}"
+        if self.clusters_per_group:
+            count = self.clusters_per_group[0]
+            text += f": {count:,} cluster{'s' if count != 1 else ''} of {self.cluster_size}"
+        return text
 
     def to_dict(self) -> dict[str, Any]:
         out = asdict(self)

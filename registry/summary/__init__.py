@@ -61,8 +61,11 @@ def build_summary(report: SpecReport, spec_path: Path, rendered_at: datetime, *,
         body = insert_figure(body, name, _alt(spec.id), inline_svg(bounds), bounds.description)
         figures[name] = bounds.svg
     nav = '<nav aria-label="Registry"><a href="index.html">All summaries</a></nav>\n' if index_link else ""
+    version = prov.registration_tags[-1][0].rsplit("/", 1)[-1] if prov.registration_tags else (
+        f"commit {prov.commit[:10]}" if prov.commit else "not committed")
+    header = f"{spec.id} · {version} · rendered {iso_utc(rendered_at)[:10]}"
     html = page(title=f"{spec.title} ({spec.id}): design summary", body=body, rendered_at=iso_utc(rendered_at),
-                tool_version=__version__, caution=CAUTION, nav=nav)
+                tool_version=__version__, caution=CAUTION, nav=nav, running_header=header)
     return Summary(spec.id, markdown, html, figure.svg, prov, figures)
 
 
@@ -71,5 +74,5 @@ def build_index(rows: list[IndexRow], rendered_at: datetime) -> tuple[str, str]:
     stamp = iso_utc(rendered_at)
     markdown = index_markdown(rows, stamp, __version__)
     html = page(title="Design registry summaries", body=markdown_to_html(markdown), rendered_at=stamp,
-                tool_version=__version__, caution=CAUTION, wide=True)
+                tool_version=__version__, caution=CAUTION, wide=True, script=True)
     return markdown, html

@@ -15,8 +15,9 @@ from typing import Any
 from pydantic import BaseModel
 
 from ..checks import CAUTION, Finding, SpecReport
-from ..guidelines import GUIDELINES, REGISTRY_KEEPS, coverage
+from ..guidelines import REGISTRY_KEEPS, coverage, guidelines_for, study_type
 from ..power.base import DesignBase, Family
+from ..power.results import power_text
 from . import mdtext as md
 from .numbers import Scenario, analysable, has_spread, sensitivity
 from .provenance import Provenance, iso_utc
@@ -64,8 +65,7 @@ def _num(value: Any) -> str:
 
 
 def _alternative(design: DesignBase) -> str:
-    return {"two-sided": "two-sided", "greater": "one-sided (an increase)",
-            "less": "one-sided (a decrease)"}[design.alternative]
+    return design.family.sides(design)
 
 
 def _counted(family: Family) -> str:
@@ -93,6 +93,38 @@ def figure_alt(spec_id: str) -> str:
     return f"Power curve of {spec_id}: power against analysable n, target and planned n marked"
 
 
+#: How a verdict reads where it matters: a symbol and words, so it stands out in black and white too.
+_BAD = {"underpowered", "invalid", "partial-clusters", "drift", "history-unreadable", "untracked", "unreadable"}
+_GOOD = {"ok", "clean", "registered"}
+
+
+def verdict_level(verdict: str) -> str:
+    """'good', 'warn' or 'bad': how much a verdict asks for a reader's attention."""
+    if verdict in _GOOD:
+        return "good"
+    if verdict in _BAD or verdict.endswith("error"):
+        return "bad"
+    return "warn"
+
+
+def flag(verdict: str) -> str:
+    """A verdict as a flag the page styles: '**✔ ok**', '**⚠ OVERSIZED**', '**✖ UNDERPOWERED**'."""
+    level = verdict_level(verdict)
+    if level == "good":
+        return f"**✔ {md.inline(verdict)}**"
+    return f"**{'✖' if level == 'bad' else '⚠'} {md.inline(verdict.upper())}**"
+
+
+def _status_block(report: SpecReport, prov: Provenance) -> str:
+    """The lines at the top: render date, start of data collection, registration, and the verdicts."""
+    tags = [name for name, _ in prov.registration_tags]
+    registration = flag("registered") + f" ({', '.join(md.code(t) for t in tags)})" if tags else flag("not registered")
+    drift = drift_verdict(report)
+    return (f"Rendered {iso_utc(prov.rendered_at)[:10]} · data collection starts "
+            f"{prov.data_collection_start.isoformat()} · registration: {registration}\n\n"
+            f"Sample size: {flag(report.verdict)} · history: {flag(drift)}")
+
+
 def drift_verdict(report: SpecReport) -> str:
     """The most serious history finding kind; 'clean' when history was read and found nothing;
     'history not checked' when the report carries no history information."""
@@ -118,11 +150,11 @@ def _key_table(report: SpecReport) -> str:
         ("Significance level (alpha)", _num(design.alpha)),
         ("Target power", _num(design.power)),
         (f"Planned enrolment ({family.unit})", _num(spec.sample_size.per_group)),
-        (f"Required enrolment ({family.unit})", _num(sample.enrolment_per_group)),
+        (f"Required enrolment ({family.unit})", md.inline(sample.enrolment_words().replace(f" {family.unit}", "", 1))),
         (f"Required analysable ({family.unit})", _num(sample.n_per_group)),
         ("Power at the planned n", power),
-        ("Check verdict", report.verdict),
-        ("Drift verdict", drift_verdict(report)),
+        ("Check verdict", flag(report.verdict)),
+        ("Drift verdict", flag(drift_verdict(report))),
     ]
     return md.table(["Quantity", "Value"], rows)
 
@@ -274,7 +306,8 @@ def _justification(report: SpecReport) -> str:
         opening = "The sample size is based on the primary comparison of the design."
     sentences = [
         opening,
-        f"The primary analysis uses the {md.inline(_lower_first(family.title))}, {_alternative(design)}, at a "
+        f"The primary analysis uses the {md.inline(_lower_first(family.title))}"
+        f"{'' if family.undirected else ', ' + _alternative(design) + ','} at a "
         f"significance level of {_num(design.alpha)} with a target power of {design.power:.0%}.",
         _effect_phrase(report),
     ]
@@ -294,8 +327,10 @@ def _justification(report: SpecReport) -> str:
                      f"power of {sample.achieved_power:.3f}.")
     if design.attrition:
         enrolled_total = f" ({_num(sample.enrolment_total)} in total)" if sample.n_total != sample.n_per_group else ""
+        clusters = (f" ({sample.clusters_per_group[0]:,} clusters of {sample.cluster_size})"
+                    if sample.clusters_per_group else "")
         sentences.append(f"Allowing for {design.attrition:.0%} attrition, {_num(sample.enrolment_per_group)} "
-                         f"{counted}{enrolled_total} are to be enrolled.")
+                         f"{counted}{clusters}{enrolled_total} are to be enrolled.")
     sentences.append(_planned_sentence(report))
     sentences.append(_multiplicity(report))
     text = " ".join(sentences)
@@ -329,7 +364,10 @@ def _planned_sentence(report: SpecReport) -> str:
     left = f", {_num(kept)} analysable after attrition," if design.attrition else ""
     if report.at_planned is None:
         return f"The planned enrolment of {_num(planned)} {counted} leaves too few analysable units to test."
-    power = f"power {report.at_planned.power:.3f}"
+    power = f"power {power_text(report.at_planned.power, design.power)}"
+    if planned < report.sample.enrolment_per_group and report.at_planned.power >= design.power:
+        return (f"The planned enrolment of {_num(planned)} {counted}{left} gives {power}, but the design needs "
+                f"{md.inline(report.sample.enrolment_words())}.")
     if planned < report.sample.enrolment_per_group:
         return (f"The planned enrolment of {_num(planned)} {counted}{left} gives only {power}, below the target; "
                 "the design is underpowered as planned.")
@@ -367,7 +405,8 @@ def _size_table(report: SpecReport) -> str:
     if family.groups == 2 and design.allocation_ratio != 1:
         note += f" Group 2 gets {_num(design.allocation_ratio)} times the units of group 1, rounded up."
     if sample.events is not None:
-        note += f" The test needs {_num(sample.events)} events in all."
+        note += (f" The test needs {_num(sample.events)} events in all (the events formula rounded up to whole "
+                 "events); follow the study until they have occurred.")
     for extra in sample.notes:
         note += f" {md.inline(extra)}"
     return md.table(head, rows, ["l"] + ["r"] * (len(head) - 1)) + "\n\n" + note
@@ -389,7 +428,7 @@ def _mde(report: SpecReport) -> str:
              for n, v in natural.items() if n != family.symbol]
     smallest = f"{_join(words)} ({standardized})" if words else standardized
     return (f"With the planned {_num(at.n_per_group)} analysable {_counted(family)}, alpha {_num(design.alpha)} "
-            f"{_alternative(design)} and power {_num(design.power)}, the smallest effect the study can detect is "
+            f"({_alternative(design)}) and power {_num(design.power)}, the smallest effect the study can detect is "
             f"{smallest}. The stated effect is {symbol} = {at.effect_size:.3g}.")
 
 
@@ -444,6 +483,35 @@ def _analysis(report: SpecReport) -> dict[str, str]:
     }
 
 
+def _timeline(report: SpecReport, prov: Provenance) -> str:
+    """Every committed version of the spec, its registrations and amendments, and, for each version,
+    the locked fields it changed (old -> new)."""
+    from ..history import commit_day, show_change
+
+    history = report.history
+    if history is None or not history.revisions:
+        return "No git history was read for this spec, so there is no timeline of versions."
+    tags: dict[str, list[str]] = {}
+    for name, sha in prov.registration_tags:
+        tags.setdefault(sha, []).append(name)
+    rows = []
+    for version, revision in enumerate(history.revisions, start=1):
+        commit = revision.commit
+        events = [revision.action]
+        events += [f"registered as {md.code(t)}" for t in tags.get(commit.sha, [])]
+        locked = [c for c in revision.changes if c.locked]
+        if any(c.field == "amendments" or c.amendment for c in revision.changes):
+            events.append("amendment")
+        diff = "; ".join(f"{md.code(c.field)}: {md.cell(show_change(c.old, c.new))}"
+                         + (" (amended)" if c.amended else " (**drift**)" if c.after_start else "")
+                         for c in locked) or "-"
+        rows.append((f"v{version}", commit_day(commit.committer_date).isoformat(), md.code(commit.short),
+                     ", ".join(events), "after" if revision.after_start else "before", diff))
+    return ("One row per committed version; the last column compares each version's locked fields with the "
+            "version before.\n\n" + md.table(["Version", "Date", "Commit", "Event", "Start", "Locked fields changed"],
+                                               rows, ["l", "l", "l", "l", "l", "l"]))
+
+
 def _amendments(report: SpecReport) -> str:
     spec = report.spec
     assert spec is not None
@@ -486,9 +554,21 @@ def _guidelines(report: SpecReport) -> str:
     spec = report.spec
     assert spec is not None
     items = coverage(spec)
-    parts = ["Which items of published reporting guidelines the spec's fields speak to. The topics are "
+    kind, inferred = study_type(spec)
+    chosen = guidelines_for(spec)
+    if kind is None:
+        why = ("The spec does not state its `study_type` (animal, clinical-trial, in-vitro, field or "
+               "human-observational) and its population does not settle it, so every guideline is shown; "
+               "state it to see only those that apply.")
+    else:
+        how = "inferred from the population; state `study_type` to confirm it" if inferred else "stated in the spec"
+        names = ", ".join(g.name for g in chosen)
+        why = (f"Study type: {kind} ({how}). " + (f"Guidelines for it: {names}." if chosen else
+               "None of the guidelines prespec maps (ARRIVE 2.0, SPIRIT 2013, CONSORT 2010) is written for "
+               "this kind of study, so none is checked."))
+    parts = [why + " The tables show which items of each guideline the spec's fields speak to. The topics are "
              "paraphrased; consult each checklist for its full wording."]
-    for guideline in GUIDELINES:
+    for guideline in chosen:
         rows = []
         for item in (c for c in items if c.guideline == guideline.name):
             fields = ", ".join("registry history" if f == REGISTRY_KEEPS else f for f in item.present + item.missing)
@@ -496,7 +576,8 @@ def _guidelines(report: SpecReport) -> str:
             if item.status == "partly covered":
                 status += " (missing: " + ", ".join(item.missing) + ")"
             rows.append((item.number, item.topic, status, md.cell(fields)))
-        parts.append(f"### {md.inline(guideline.name)}\n\n"
+        scope = f"{md.inline(guideline.scope)}\n\n" if guideline.scope else ""
+        parts.append(f"### {md.inline(guideline.name)}\n\n" + scope
                      + md.table(["Item", "Topic", "Status", "Spec fields"], rows, ["r", "l", "l", "l"])
                      + f"\n\n{md.inline(guideline.reference)}")
     return "\n\n".join(parts)
@@ -550,6 +631,7 @@ def summary_markdown(report: SpecReport, prov: Provenance) -> str:
         "status": spec.status,
         "family_title": md.inline(spec.design.family.title),
         "caution": md.inline(CAUTION),
+        "status_block": _status_block(report, prov),
         "key_table": _key_table(report),
         "question": _question(report),
         "outcomes": _outcomes(report),
@@ -561,6 +643,7 @@ def summary_markdown(report: SpecReport, prov: Provenance) -> str:
         "figure": _figure(report),
         **_analysis(report),
         "amendments": _amendments(report),
+        "timeline": _timeline(report, prov),
         "drift": _drift(report),
         "findings": _findings(report),
         "guidelines": _guidelines(report),
@@ -598,8 +681,8 @@ def index_markdown(rows: list[IndexRow], rendered_at: str, tool_version: str) ->
             _num(spec.sample_size.per_group),
             _num(report.required_per_group),
             power,
-            report.verdict,
-            drift_verdict(report),
+            flag(report.verdict),
+            flag(drift_verdict(report)),
         ))
     count = f"{len(table_rows)} summar{'y' if len(table_rows) == 1 else 'ies'}"
     table = (md.table(["Spec", "Id", "Status", "Planned n", "Required n", "Power at planned n", "Check verdict",

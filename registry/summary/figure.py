@@ -52,15 +52,17 @@ def power_figure(curve: Curve, *, target: float, required: int, planned: int | N
 
     label_unit = "n per group" if unit == "per group" else f"n ({unit})"
     with matplotlib.rc_context(_RC):
-        fig = Figure(figsize=(6.4, 3.6))
+        fig = Figure(figsize=(6.4, 4.0))
         ax = fig.add_subplot()
         ax.plot(curve.n, curve.power, color=_BLUE, linewidth=2, label="power")
         ax.axhline(target, color=_GREY, linestyle="--", linewidth=1, label=f"target power {target:g}")
-        ax.axvline(required, color=_BLUE, linestyle=":", linewidth=1.5, label=f"required n = {required:,}")
+        same = planned == required  # then the two lines alternate dashes, so both stay visible
+        ax.axvline(required, color=_BLUE, linestyle=(0, (4, 4)) if same else ":", linewidth=1.8,
+                   label=f"required n = {required:,}")
         if planned is not None:
             at = curve.power[curve.n.index(planned)] if planned in curve.n else None
-            ax.axvline(planned, color=_ORANGE, linestyle="-.", linewidth=1.5,
-                       label=f"planned n = {planned:,} (analysable)")
+            ax.axvline(planned, color=_ORANGE, linestyle=(4, (4, 4)) if same else "-.", linewidth=1.8,
+                       label=f"planned n = {planned:,} (analysable)" + (", the required n" if same else ""))
             if at is not None:
                 ax.plot([planned], [at], marker="o", color=_ORANGE, markersize=6)
         ax.set_xlim(curve.n[0], curve.n[-1])
@@ -69,7 +71,8 @@ def power_figure(curve: Curve, *, target: float, required: int, planned: int | N
         ax.set_ylabel("Power")
         ax.grid(True, color="#d9d9d9", linewidth=0.6)
         ax.spines[["top", "right"]].set_visible(False)
-        ax.legend(loc="lower right", frameon=True, framealpha=0.95, edgecolor="#bfbfbf", fontsize=9)
+        # Below the axes, never over the lines.
+        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.2), ncol=2, frameon=False, fontsize=9)
         fig.tight_layout()
         buffer = io.StringIO()
         fig.savefig(buffer, format="svg", metadata={"Date": None})

@@ -8,13 +8,14 @@ SVG, which replaces the one image reference our template writes.
 from __future__ import annotations
 
 import html
+import re
 from importlib import resources
 from string import Template
 
 from markdown_it import MarkdownIt
 from markdown_it.rules_core import StateCore
 
-__all__ = ["markdown_to_html", "page", "insert_figure", "CSS"]
+__all__ = ["markdown_to_html", "page", "insert_figure", "CSS", "SITE_SCRIPT", "SITE_SCRIPT_NAME"]
 
 
 def _table_headers(state: StateCore) -> None:
@@ -40,6 +41,9 @@ def _parser() -> MarkdownIt:
 
 _PARSER = _parser()
 CSS = resources.files("registry").joinpath("templates", "summary.css").read_text(encoding="utf-8")
+#: The index's filter script: a file beside the pages, allowed by the CSP as 'self' (no inline script).
+SITE_SCRIPT_NAME = "site.js"
+SITE_SCRIPT = resources.files("registry").joinpath("templates", SITE_SCRIPT_NAME).read_text(encoding="utf-8")
 _PAGE = Template(resources.files("registry").joinpath("templates", "page.html").read_text(encoding="utf-8"))
 
 
@@ -56,15 +60,36 @@ def insert_figure(body: str, src: str, alt: str, svg: str, caption: str) -> str:
     return body.replace(reference, figure)
 
 
+_FLAG = re.compile(r"<strong>([✔⚠✖]) ")
+_LEVELS = {"✔": "good", "⚠": "warn", "✖": "bad"}
+
+
+def mark_flags(body: str) -> str:
+    """Give the verdict flags the Markdown wrote (``**✔ ok**``, ``**✖ DRIFT**``) their colour class,
+    and the status lines at the top theirs."""
+    body = _FLAG.sub(lambda m: f'<strong class="flag flag-{_LEVELS[m.group(1)]}">{m.group(1)} ', body)
+    return re.sub(r"<p>(Rendered |Sample size: )", r'<p class="status">\1', body)
+
+
+def _css_string(text: str) -> str:
+    return '"' + "".join(ch if ch.isalnum() or ch in " .:-_/()·," else f"\\{ord(ch):x} " for ch in text) + '"'
+
+
 def page(*, title: str, body: str, rendered_at: str, tool_version: str, caution: str, nav: str = "",
-         wide: bool = False) -> str:
+         wide: bool = False, running_header: str = "", script: bool = False) -> str:
     """A complete HTML document; ``title`` and ``caution`` are plain text, ``body`` and ``nav`` are HTML.
-    ``wide`` gives a table-heavy page (the index) a wider column."""
+    ``wide`` gives a table-heavy page (the index) a wider column; ``running_header`` (plain text) is
+    printed at the top of every printed page."""
+    css = CSS
+    if running_header:
+        css += f"@page {{ @top-left {{ content: {_css_string(running_header)}; }} }}\n"
     return _PAGE.substitute(
+        script_src="; script-src 'self'" if script else "",
+        script=f'<script src="{SITE_SCRIPT_NAME}" defer></script>\n' if script else "",
         layout="wide" if wide else "reading",
         title=html.escape(title),
-        css=CSS,
-        body=body,
+        css=css,
+        body=mark_flags(body),
         nav=nav,
         rendered_at=html.escape(rendered_at),
         tool_version=html.escape(tool_version),
