@@ -3,7 +3,9 @@
 A design family is one module holding a :class:`Family` subclass and the pydantic
 model of its ``design.effect`` block. :mod:`registry.power.catalog` registers it in
 one line; from there it appears in the spec model, the JSON Schema, ``check`` and
-``size`` without further wiring.
+``size`` without further wiring. This module imports no family and not the catalog:
+the catalog sits above the families and hands each design model its family
+(``DesignBase.family_instance``), so the import graph has no cycle.
 """
 
 from __future__ import annotations
@@ -136,6 +138,9 @@ class DesignBase(BaseModel):
 
     model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False)
 
+    #: The family this design model belongs to; the catalog builds one subclass per family and sets it.
+    family_instance: ClassVar["Family | None"] = None
+
     test: str = locked(description="Design family: which test the primary analysis uses.")
     alternative: Alternative = locked(
         default="two-sided",
@@ -195,23 +200,19 @@ class DesignBase(BaseModel):
                 f"power ({self.power:g}) must be greater than alpha ({self.alpha:g}); "
                 "a test has power alpha even when there is no effect"
             )
-        if (self.simulation is not None and self.simulation.distribution is not None
-                and self.simulation.distribution not in self.family.distributions):
+        family = type(self).family_instance
+        if (family is not None and self.simulation is not None and self.simulation.distribution is not None
+                and self.simulation.distribution not in family.distributions):
             raise ValueError(
                 f"simulation.distribution {self.simulation.distribution!r} is not offered for {self.test}; "
-                f"choose one of {', '.join(self.family.distributions)}"
+                f"choose one of {', '.join(family.distributions)}"
             )
         return self
 
     @model_validator(mode="after")
     def _cluster_needs_two_groups(self) -> "DesignBase":
-        if self.cluster is None:
-            return self
-        from .catalog import UnknownFamily, get_family
-
-        try:
-            family = get_family(self.test)
-        except UnknownFamily:
+        family = type(self).family_instance
+        if self.cluster is None or family is None:
             return self
         if family.groups < 2:
             raise ValueError(
@@ -223,9 +224,10 @@ class DesignBase(BaseModel):
 
     @property
     def family(self) -> "Family":
-        from .catalog import get_family
-
-        return get_family(self.test)
+        family = type(self).family_instance
+        if family is None:
+            raise TypeError(f"{type(self).__name__} is not a family's design model; build designs through the catalog")
+        return family
 
     @property
     def effective_alpha(self) -> float:

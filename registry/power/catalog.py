@@ -77,6 +77,7 @@ def _design_model(family: Family) -> type[DesignBase]:
         test=(Literal[family.name], locked(description=f"Design family: {family.title}.")),  # type: ignore[valid-type]
         effect=(family.effect_model, locked(description="The effect to detect, in natural or standardized units.")),
     )
+    model.family_instance = family
     return model
 
 
