@@ -23,6 +23,11 @@ from .two_proportions import TwoProportions
 from .signed_rank import SignedRank
 from .two_sample_t import TwoSampleT
 from .welch_t import WelchT
+from .crossover_2x2 import Crossover2x2
+from .ancova import Ancova
+from .mcnemar import McNemar
+from .poisson_rate import PoissonRate
+from .negative_binomial_rate import NegativeBinomialRate
 
 __all__ = ["FAMILIES", "family_names", "get_family", "DesignUnion", "UnknownFamily"]
 
@@ -43,6 +48,11 @@ FAMILIES: tuple[Family, ...] = (
     SignedRank(),
     EquivalenceT(),
     NonInferiorityT(),
+    Ancova(),
+    Crossover2x2(),
+    McNemar(),
+    PoissonRate(),
+    NegativeBinomialRate(),
 )
 
 _BY_NAME = {family.name: family for family in FAMILIES}
