@@ -98,6 +98,7 @@ class Ancova(Family):
     exact = False
     effect_model = AdjustedDifference
     example = {"difference": 4.0, "sd": 8.0, "correlation": 0.6}
+    effect_words = {"correlation": "a correlation between the baseline covariate and the outcome of"}
 
     def effect_size(self, design: DesignBase) -> float:
         return design.effect.standardized()

@@ -281,6 +281,9 @@ class Family(ABC):
     exact: ClassVar[bool] = True
     #: Whether power never decreases with n (False for exact discrete tests).
     monotone: ClassVar[bool] = True
+    #: How the summary's justification reads an effect field in a sentence ("a rate in group 1 of"),
+    #: where the shared wording does not fit this family.
+    effect_words: ClassVar[dict[str, str]] = {}
     #: An illustrative ``design.effect`` block for ``prespec new`` templates.
     example: ClassVar[dict[str, Any]] = {}
     #: Set by the catalog: the spec's design model for this family.

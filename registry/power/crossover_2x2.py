@@ -78,10 +78,11 @@ class Crossover2x2(Family):
         "23(12), 1921-1986."
     )
     symbol = "d"
-    unit = "per sequence"
+    unit = "subjects per sequence"
     groups = 2
     effect_model = CrossoverDifference
     example = {"difference": 5.0, "sd_within": 10.0}
+    effect_words = {"difference": "a test-minus-reference difference of", "sd_within": "a within-subject standard deviation of"}
 
     def effect_size(self, design: DesignBase) -> float:
         return design.effect.standardized()

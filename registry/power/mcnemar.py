@@ -80,6 +80,8 @@ class McNemar(Family):
     exact = False
     effect_model = DiscordantPairs
     example = {"p10": 0.10, "p01": 0.25}
+    effect_words = {"p10": "a proportion of pairs with the outcome in condition 1 only of",
+                    "p01": "a proportion of pairs with the outcome in condition 2 only of"}
     distributions = ("binary",)
 
     def effect_size(self, design: DesignBase) -> float:

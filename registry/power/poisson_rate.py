@@ -88,6 +88,9 @@ class PoissonRate(Family):
     exact = False
     effect_model = RatePair
     example = {"rate1": 2.0, "rate2": 1.5, "exposure": 1.0}
+    effect_words = {"rate1": "an event rate per unit of exposure in group 1 of", "rate2": "a rate in group 2 of",
+                    "exposure": "an exposure per unit of", "dispersion": "a negative binomial dispersion of",
+                    "rate_ratio": "a rate ratio of"}
     distributions = ("counts",)
 
     def dispersion(self, design: DesignBase) -> float:
