@@ -28,6 +28,7 @@ from .ancova import Ancova
 from .mcnemar import McNemar
 from .poisson_rate import PoissonRate
 from .negative_binomial_rate import NegativeBinomialRate
+from .many_to_one import ManyToOne
 
 __all__ = ["FAMILIES", "family_names", "get_family", "DesignUnion", "UnknownFamily"]
 
@@ -53,6 +54,7 @@ FAMILIES: tuple[Family, ...] = (
     McNemar(),
     PoissonRate(),
     NegativeBinomialRate(),
+    ManyToOne(),
 )
 
 _BY_NAME = {family.name: family for family in FAMILIES}
