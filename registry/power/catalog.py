@@ -29,6 +29,7 @@ from .mcnemar import McNemar
 from .poisson_rate import PoissonRate
 from .negative_binomial_rate import NegativeBinomialRate
 from .many_to_one import ManyToOne
+from .factorial_anova import FactorialAnova
 
 __all__ = ["FAMILIES", "family_names", "get_family", "DesignUnion", "UnknownFamily"]
 
@@ -55,6 +56,7 @@ FAMILIES: tuple[Family, ...] = (
     PoissonRate(),
     NegativeBinomialRate(),
     ManyToOne(),
+    FactorialAnova(),
 )
 
 _BY_NAME = {family.name: family for family in FAMILIES}
