@@ -331,6 +331,11 @@ class Family(ABC):
         """Express a standardized effect in the design's natural units where it has them."""
         return {self.symbol: effect_size}
 
+    def effect_text(self, name: str, value: Any) -> str | None:
+        """How the summary shows the value of effect field ``name`` when plain number formatting does not
+        read well (structured fields); None for the default."""
+        return None
+
     def symbol_for(self, design: DesignBase) -> str:
         """Symbol of the effect size for this design (families with two effect scales override)."""
         return self.symbol

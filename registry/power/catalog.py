@@ -30,6 +30,7 @@ from .poisson_rate import PoissonRate
 from .negative_binomial_rate import NegativeBinomialRate
 from .many_to_one import ManyToOne
 from .factorial_anova import FactorialAnova
+from .repeated_measures import RepeatedMeasures
 
 __all__ = ["FAMILIES", "family_names", "get_family", "DesignUnion", "UnknownFamily"]
 
@@ -57,6 +58,7 @@ FAMILIES: tuple[Family, ...] = (
     NegativeBinomialRate(),
     ManyToOne(),
     FactorialAnova(),
+    RepeatedMeasures(),
 )
 
 _BY_NAME = {family.name: family for family in FAMILIES}

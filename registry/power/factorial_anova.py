@@ -163,7 +163,17 @@ class FactorialAnova(Family):
     effect_model = FactorialEffect
     example = {"factors": [{"name": "genotype", "levels": 2}, {"name": "diet", "levels": 2}],
                "primary": "genotype:diet", "means": [10.0, 10.0, 10.0, 14.0], "sd": 4.0}
-    effect_words = {"means": "cell means of", "primary": "a primary term", "factors": "factors"}
+    effect_words = {"means": "cell means of", "primary": "a primary term", "factors": "the factors", "f": "Cohen's f "
+                    "per term of"}
+
+    def effect_text(self, name, value):  # type: ignore[override]
+        if name == "factors":
+            return " x ".join(f"{f.name} ({f.levels} levels)" for f in value)
+        if name == "means":
+            return ", ".join(f"{m:g}" for m in value) + " (cells in factor order, the last factor varying fastest)"
+        if name == "f":
+            return ", ".join(f"{term} {f:g}" for term, f in value.items())
+        return None
 
     def effect_size(self, design: DesignBase) -> float:
         require_two_sided(design, self)

@@ -79,7 +79,8 @@ def _outcome_unit(report: SpecReport) -> str | None:
 
 def _with_unit(name: str, value: float, unit: str | None, family: Family) -> str:
     """A value of an effect field, with the outcome's unit when the field is measured in it (mean-type designs)."""
-    text = _num(value)
+    shown = family.effect_text(name, value)
+    text = md.inline(shown) if shown is not None else _num(value)
     in_outcome_units = name in _OUTCOME_UNIT_FIELDS and has_spread(family)
     return f"{text} {md.inline(unit)}" if unit and in_outcome_units else text
 
