@@ -84,7 +84,7 @@ def test_bad_factorial_inputs(kw, message):
         design_from_params("factorial-anova", **kw)
 
 
-NEW_FAMILIES = ["ancova", "crossover-2x2", "mcnemar", "poisson-rate", "negative-binomial-rate", "many-to-one", "repeated-measures",
+NEW_FAMILIES = ["ancova", "crossover-2x2", "mcnemar", "poisson-rate", "negative-binomial-rate", "many-to-one", "repeated-measures", "logistic-regression",
                 "factorial-anova"]
 
 

@@ -31,6 +31,7 @@ from .negative_binomial_rate import NegativeBinomialRate
 from .many_to_one import ManyToOne
 from .factorial_anova import FactorialAnova
 from .repeated_measures import RepeatedMeasures
+from .logistic_regression import LogisticRegression
 
 __all__ = ["FAMILIES", "family_names", "get_family", "DesignUnion", "UnknownFamily"]
 
@@ -59,6 +60,7 @@ FAMILIES: tuple[Family, ...] = (
     ManyToOne(),
     FactorialAnova(),
     RepeatedMeasures(),
+    LogisticRegression(),
 )
 
 _BY_NAME = {family.name: family for family in FAMILIES}
