@@ -84,8 +84,8 @@ def test_bad_factorial_inputs(kw, message):
         design_from_params("factorial-anova", **kw)
 
 
-NEW_FAMILIES = ["ancova", "crossover-2x2", "mcnemar", "poisson-rate", "negative-binomial-rate", "many-to-one", "repeated-measures", "logistic-regression",
-                "factorial-anova"]
+NEW_FAMILIES = ["ancova", "crossover-2x2", "mcnemar", "poisson-rate", "negative-binomial-rate", "many-to-one",
+                "factorial-anova", "repeated-measures", "logistic-regression", "mixed-design"]
 
 
 @pytest.mark.parametrize("test", NEW_FAMILIES)

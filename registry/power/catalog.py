@@ -32,6 +32,7 @@ from .many_to_one import ManyToOne
 from .factorial_anova import FactorialAnova
 from .repeated_measures import RepeatedMeasures
 from .logistic_regression import LogisticRegression
+from .mixed_design import MixedDesign
 
 __all__ = ["FAMILIES", "family_names", "get_family", "DesignUnion", "UnknownFamily"]
 
@@ -61,6 +62,7 @@ FAMILIES: tuple[Family, ...] = (
     FactorialAnova(),
     RepeatedMeasures(),
     LogisticRegression(),
+    MixedDesign(),
 )
 
 _BY_NAME = {family.name: family for family in FAMILIES}
