@@ -321,4 +321,4 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
 
 
 def _kind(design: DesignBase) -> str:
-    return "exact" if design.family.exact else "normal approximation"
+    return "exact" if design.family.exact else "approximation, see method"
