@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import json
 import os
 import re
 from datetime import date, timedelta
@@ -50,6 +51,8 @@ def _schema_reference(folder: Path) -> str:
 
 
 def _yaml_scalar(value: object) -> str:
+    if isinstance(value, (list, dict)):  # a flow sequence or mapping; JSON is valid YAML
+        return json.dumps(value)
     if isinstance(value, str):
         return '"' + value.replace("\\", "\\\\").replace('"', '\\"') + '"'
     return repr(value)

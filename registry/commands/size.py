@@ -155,10 +155,14 @@ def _spec_field_options() -> list[tuple[str, str, str, str]]:
         for name, info in model.model_fields.items():
             fields[f"{block}.{name}"] = (_kind_of(info.annotation), info.description or "", [])
     out = []
-    for name, (kind, description, families) in fields.items():
+    # the design's own blocks first: an effect field spelled like one (mixed-design's cluster_size
+    # beside cluster.size) is left to --param, so no option means two things
+    ordered = sorted(fields.items(), key=lambda item: bool(item[1][2]))
+    for name, (kind, description, families) in ordered:
         option = "--" + name.replace("_", "-").replace(".", "-")
         if option in taken:
             continue
+        taken.add(option)
         text = description.split(". ")[0].rstrip(".")
         if families and len(families) < 4:
             text += f" ({', '.join(families)})"

@@ -3,7 +3,9 @@
 A design family is one module holding a :class:`Family` subclass and the pydantic
 model of its ``design.effect`` block. :mod:`registry.power.catalog` registers it in
 one line; from there it appears in the spec model, the JSON Schema, ``check`` and
-``size`` without further wiring.
+``size`` without further wiring. This module imports no family and not the catalog:
+the catalog sits above the families and hands each design model its family
+(``DesignBase.family_instance``), so the import graph has no cycle.
 """
 
 from __future__ import annotations
@@ -164,6 +166,9 @@ class DesignBase(BaseModel):
 
     model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False)
 
+    #: The family this design model belongs to; the catalog builds one subclass per family and sets it.
+    family_instance: ClassVar["Family | None"] = None
+
     test: str = locked(description="Design family: which test the primary analysis uses.")
     alternative: Alternative = locked(
         default="two-sided",
@@ -233,11 +238,12 @@ class DesignBase(BaseModel):
                 f"power ({self.power:g}) must be greater than alpha ({self.alpha:g}); "
                 "a test has power alpha even when there is no effect"
             )
-        if (self.simulation is not None and self.simulation.distribution is not None
-                and self.simulation.distribution not in self.family.distributions):
+        family = type(self).family_instance
+        if (family is not None and self.simulation is not None and self.simulation.distribution is not None
+                and self.simulation.distribution not in family.distributions):
             raise ValueError(
                 f"simulation.distribution {self.simulation.distribution!r} is not offered for {self.test}; "
-                f"choose one of {', '.join(self.family.distributions)}"
+                f"choose one of {', '.join(family.distributions)}"
             )
         return self
 
@@ -266,13 +272,8 @@ class DesignBase(BaseModel):
 
     @model_validator(mode="after")
     def _cluster_needs_two_groups(self) -> "DesignBase":
-        if self.cluster is None:
-            return self
-        from .catalog import UnknownFamily, get_family
-
-        try:
-            family = get_family(self.test)
-        except UnknownFamily:
+        family = type(self).family_instance
+        if self.cluster is None or family is None:
             return self
         if family.groups < 2:
             raise ValueError(
@@ -284,9 +285,10 @@ class DesignBase(BaseModel):
 
     @property
     def family(self) -> "Family":
-        from .catalog import get_family
-
-        return get_family(self.test)
+        family = type(self).family_instance
+        if family is None:
+            raise TypeError(f"{type(self).__name__} is not a family's design model; build designs through the catalog")
+        return family
 
     @property
     def effective_alpha(self) -> float:
@@ -352,6 +354,9 @@ class Family(ABC):
     #: Non-monotone families: the scan for the settled n starts at this fraction of the formula's
     #: n (0: at ``min_n``); it moves lower whenever the power there already reaches the target.
     scan_floor: ClassVar[float] = 0.0
+    #: How the summary's justification reads an effect field in a sentence ("a rate in group 1 of"),
+    #: where the shared wording does not fit this family.
+    effect_words: ClassVar[dict[str, str]] = {}
     #: An illustrative ``design.effect`` block for ``prespec new`` templates.
     example: ClassVar[dict[str, Any]] = {}
     #: Set by the catalog: the spec's design model for this family.
@@ -401,6 +406,11 @@ class Family(ABC):
     def natural_effect(self, design: DesignBase, effect_size: float) -> dict[str, float]:
         """Express a standardized effect in the design's natural units where it has them."""
         return {self.symbol: effect_size}
+
+    def effect_text(self, name: str, value: Any) -> str | None:
+        """How the summary shows the value of effect field ``name`` when plain number formatting does not
+        read well (structured fields); None for the default."""
+        return None
 
     def symbol_for(self, design: DesignBase) -> str:
         """Symbol of the effect size for this design (families with two effect scales override)."""

@@ -24,6 +24,16 @@ from .two_proportions import TwoProportions
 from .signed_rank import SignedRank
 from .two_sample_t import TwoSampleT
 from .welch_t import WelchT
+from .crossover_2x2 import Crossover2x2
+from .ancova import Ancova
+from .mcnemar import McNemar
+from .poisson_rate import PoissonRate
+from .negative_binomial_rate import NegativeBinomialRate
+from .many_to_one import ManyToOne
+from .factorial_anova import FactorialAnova
+from .repeated_measures import RepeatedMeasures
+from .logistic_regression import LogisticRegression
+from .mixed_design import MixedDesign
 
 __all__ = ["FAMILIES", "family_names", "get_family", "DesignUnion", "UnknownFamily"]
 
@@ -45,6 +55,16 @@ FAMILIES: tuple[Family, ...] = (
     SignedRank(),
     EquivalenceT(),
     NonInferiorityT(),
+    Ancova(),
+    Crossover2x2(),
+    McNemar(),
+    PoissonRate(),
+    NegativeBinomialRate(),
+    ManyToOne(),
+    FactorialAnova(),
+    RepeatedMeasures(),
+    LogisticRegression(),
+    MixedDesign(),
 )
 
 _BY_NAME = {family.name: family for family in FAMILIES}
@@ -79,6 +99,7 @@ def _design_model(family: Family) -> type[DesignBase]:
         test=(Literal[family.name], locked(description=f"Design family: {family.title}.")),  # type: ignore[valid-type]
         effect=(family.effect_model, locked(description="The effect to detect, in natural or standardized units.")),
     )
+    model.family_instance = family
     return model
 
 

@@ -36,7 +36,9 @@ from dataclasses import dataclass
 from typing import Literal, Sequence
 
 import numpy as np
-from scipy import optimize, special
+from scipy import special
+
+from .lazy import optimize  # loaded on first use
 
 __all__ = [
     "SPENDING_FUNCTIONS",

@@ -32,7 +32,7 @@ HISTORY_KINDS: tuple[str, ...] = ("drift", "history-unreadable", "incomplete-his
 NOT_CHECKED = "history not checked"
 
 #: Effect fields measured in the primary outcome's unit.
-_OUTCOME_UNIT_FIELDS = {"difference", "sd", "sd1", "sd2", "margin", "lower", "upper"}
+_OUTCOME_UNIT_FIELDS = {"difference", "sd", "sd1", "sd2", "sd_within", "margin", "lower", "upper"}
 #: How an effect field reads in a sentence; other fields are shown by name.
 _EFFECT_WORDS = {
     "difference": "a difference of",
@@ -80,7 +80,8 @@ def _outcome_unit(report: SpecReport) -> str | None:
 
 def _with_unit(name: str, value: float, unit: str | None, family: Family) -> str:
     """A value of an effect field, with the outcome's unit when the field is measured in it (mean-type designs)."""
-    text = _num(value)
+    shown = family.effect_text(name, value)
+    text = md.inline(shown) if shown is not None else _num(value)
     in_outcome_units = name in _OUTCOME_UNIT_FIELDS and has_spread(family)
     return f"{text} {md.inline(unit)}" if unit and in_outcome_units else text
 
@@ -251,9 +252,14 @@ def _effect_phrase(report: SpecReport) -> str:
     natural = [(n, v) for n, v in stated if n != family.symbol]
     if not natural:
         return f"The effect to detect is stated as a standardized effect size {es}."
-    words = [f"{_EFFECT_WORDS.get(n, md.inline(n) + ' of')} {_with_unit(n, v, unit, family)}" for n, v in natural]
+    words = [f"{_effect_words(family, n)} {_with_unit(n, v, unit, family)}" for n, v in natural]
     outcome = f" in {md.inline(spec.outcomes.primary.name)}" if spec.outcomes else ""
     return f"The effect to detect is {_join(words)}{outcome}, a standardized effect size of {es}."
+
+
+def _effect_words(family: Family, name: str) -> str:
+    """How an effect field reads in a sentence: the family's wording, the shared one, or its name."""
+    return family.effect_words.get(name) or _EFFECT_WORDS.get(name, md.inline(name) + " of")
 
 
 def _lower_first(title: str) -> str:
@@ -424,7 +430,7 @@ def _mde(report: SpecReport) -> str:
     natural = at.minimum_detectable_natural
     symbol = md.inline(family.symbol)
     standardized = f"{symbol} = {at.minimum_detectable_effect:.3g}"
-    words = [f"{_EFFECT_WORDS.get(n, md.inline(n) + ' of')} {_with_unit(n, round(v, 4), unit, family)}"
+    words = [f"{_effect_words(family, n)} {_with_unit(n, round(v, 4), unit, family)}"
              for n, v in natural.items() if n != family.symbol]
     smallest = f"{_join(words)} ({standardized})" if words else standardized
     return (f"With the planned {_num(at.n_per_group)} analysable {_counted(family)}, alpha {_num(design.alpha)} "
