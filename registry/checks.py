@@ -228,8 +228,12 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | N
         else:
             report.sample = solve_sample_size(design)
     except EventsOnly as error:
+        from .power.sequential_size import sequential_events
+
+        looks = sequential_events(design, error.events)
         report.add("events-only", "warning", "design.effect",
-                   f"{error.message}; until then sample_size.per_group cannot be checked", ("design", "effect"))
+                   f"{error.message}{'; ' + looks if looks else ''}; until then sample_size.per_group cannot be "
+                   "checked", ("design", "effect"))
         return
     except InfeasibleDesign as error:
         report.add("invalid", "error", error.field, error.message, tuple(error.field.split(".")))

@@ -31,6 +31,10 @@ __all__ = ["size_for_check", "check_looks", "assurance_for_check", "LOOK_TOLERAN
 LOOK_TOLERANCE = 0.05
 
 
+#: Assurance (and its power) is that of one analysis at the maximum n, whatever the interim looks.
+_SINGLE_ANALYSIS = "computed for a single analysis at this n (a sequential test has a little less)"
+
+
 def size_for_check(report: "SpecReport", design: "DesignBase") -> bool:
     """Replace the fixed sample size of ``report`` by the maximum n; False if it cannot be computed."""
     try:
@@ -225,7 +229,7 @@ def assurance_for_check(report: "SpecReport", spec: "Spec", spec_file: Any = Non
         text += (f"; assurance {result.target:g} needs {result.n_for_target} analysable {unit} "
                  f"({enrolment(result.n_for_target, design.attrition)} enrolled)")
     if design.sequential is not None:
-        text += "; computed for a single analysis at this n (a sequential test has a little less)"
+        text += f"; {_SINGLE_ANALYSIS}"
     report.add("assurance", "info", "design.assurance", text, loc)
 
 
@@ -238,6 +242,7 @@ def size_extras(design: "DesignBase", result: Any, n: int | None) -> tuple[Any, 
 
     rows: list[tuple[str, str]] = []
     extra: dict[str, Any] = {}
+    where = "at the maximum n"
     if design.sequential is not None:
         fixed = solve_sample_size(design) if n is not None else result
         size = size_sequential(design, fixed)
@@ -247,11 +252,12 @@ def size_extras(design: "DesignBase", result: Any, n: int | None) -> tuple[Any, 
         else:  # the boundaries are those of the plan; the looks fall at fractions of the given n
             result = apply_to_power(result, size)
             looks = tuple(max(design.family.min_n, math.ceil(t * n - 1e-9)) for t in plan.fractions)
+            where = f"at the design's maximum n ({size.max_n_per_group}, not {n})"
             size = replace(size, max_n_per_group=n, look_n_per_group=looks[:-1] + (n,), look_events=None)
         extra["sequential"] = size.to_dict()
         rows.append(("sequential", f"{design.sequential.describe()}; inflation {plan.inflation:.4f} over the fixed "
                                    f"design's {size.fixed_n_per_group}"))
-        rows.extend(("look", line) for line in boundary_lines(design, size))
+        rows.extend(("look", line) for line in boundary_lines(design, size, where))
         if n is not None:
             rows.append(("note", "the power above is the sequential test's; the detectable effect is that of a "
                                  "single analysis at this n"))
@@ -265,12 +271,15 @@ def size_extras(design: "DesignBase", result: Any, n: int | None) -> tuple[Any, 
         text = f"{got.assurance:.4f} at this n (limit {got.limit:.3f} as n grows)"
         if got.n_for_target is not None:
             text += f"; assurance {got.target:g} needs {got.n_for_target} {design.family.unit}"
+        if design.sequential is not None:
+            text += f"; {_SINGLE_ANALYSIS}"
         rows.append(("assurance", text))
     return result, rows, extra
 
 
-def boundary_lines(design: "DesignBase", size: Any) -> list[str]:
-    """One line per look: information, n, the z boundaries (signed as the test reads them)."""
+def boundary_lines(design: "DesignBase", size: Any, where: str = "at the maximum n") -> list[str]:
+    """One line per look: information, n, the z boundaries (signed as the test reads them) and the
+    stopping probabilities of the plan (``where`` says at which n they hold)."""
     plan = size.plan
     sign = direction(design)
     out = []
@@ -283,7 +292,7 @@ def boundary_lines(design: "DesignBase", size: Any) -> list[str]:
             fut = f"; futility {'z <= ' if sign > 0 else 'z >= '}{sign * a:.3f}"
         events = f", {size.look_events[k]} events" if size.look_events else ""
         out.append(f"{k + 1}: information {t:.3g}, n {size.look_n_per_group[k]}{events}; efficacy {eff}{fut}; "
-                   f"stop probability at the maximum n {plan.stopping('alternative')[k]:.3f} (alternative), "
+                   f"stop probability {where} {plan.stopping('alternative')[k]:.3f} (alternative), "
                    f"{plan.stopping('null')[k]:.4f} (null)")
     return out
 

@@ -259,6 +259,8 @@ def test_summary_shows_the_boundary_table_figure_and_recorded_looks(tmp_path, ru
         assert bound in text
     assert "lesion-volume-boundaries.svg" in text and "Interim looks recorded" in text
     assert "registered look 2 is at 0.667" in text
+    # the power quoted is the boundaries', so the method named is the group-sequential one
+    assert "Method of calculation: group-sequential test" in text
     page = (out / "lesion-volume.html").read_text()
     assert page.count("<svg") == 2 and "Stopping boundaries" in page
     svg = (out / "lesion-volume-boundaries.svg").read_text()
@@ -288,3 +290,70 @@ def test_a_first_look_on_very_few_units_is_warned(tmp_path, run):
     # a fifth of the maximum analyses 2 per group
     assert spec["sequential"]["looks"][0]["n_per_group"] < 5
     assert any(f["kind"] == "approximate-size" and "first look" in f["message"] for f in spec["findings"])
+
+
+def test_sequential_power_on_an_exact_family_is_not_labelled_exact(tmp_path, run):
+    argv = ("size", "two-proportions", "--p1", "0.25", "--p2", "0.10", "--looks", "3")
+    payload = run(*argv, "--json").json()
+    seq = payload["sequential"]
+    # the fixed n is the exact enumeration's (common practice: the z test's counts enumerated);
+    # the maximum n and its power come from the normal-theory boundaries, so neither is called exact
+    assert payload["n_per_group"] == seq["max_n_per_group"] == math.ceil(seq["inflation"] * seq["fixed_n_per_group"])
+    assert payload["label"].startswith("normal approximation") and payload["verification"] is None
+    assert payload["start_n"] is None and "group-sequential" in payload["method"]
+    assert all(note.startswith("fixed design: ") for note in payload["notes"][:1])
+    human = run(*argv).out
+    (power,) = [line for line in human.splitlines() if line.strip().startswith("power")]
+    assert "exact" not in power and "normal approximation" in power
+    # check on the same design agrees with size: the same maximum n and the same power
+    spec = SPEC.replace("two-sample-t", "two-proportions").replace(
+        "    difference: 6.0\n    sd: 10.0\n", "    p1: 0.25\n    p2: 0.10\n")
+    (tmp_path / "lesion-volume.yaml").write_text(spec.format(n=payload["n_per_group"], looks=""), encoding="utf-8")
+    status, checked = _spec(run, tmp_path)
+    assert checked["required_per_group"] == payload["n_per_group"] and status == 0
+    assert checked["achieved_power"] == pytest.approx(payload["achieved_power"], rel=1e-9)
+
+
+def test_size_says_assurance_is_that_of_a_single_analysis(run):
+    out = run("size", "two-sample-t", "--difference", "6", "--sd", "12", "--looks", "3", "--assurance-mean", "6",
+              "--assurance-sd", "2", "--assurance-df", "24").out
+    (line,) = [line for line in out.splitlines() if line.strip().startswith("assurance")]
+    assert "single analysis" in line
+
+
+def test_example_sequential_spec_agrees_with_size(run):
+    # the example registry's group-sequential design: check's maximum n and power are size's
+    from .conftest import EXAMPLES
+
+    payload = run("check", EXAMPLES / "balance-training-falls.yaml", "--json", "--no-history").json()
+    (spec,) = payload["specs"]
+    sized = run("size", "two-sample-t", "--difference", "6", "--sd", "12", "--looks", "3", "--param",
+                "attrition=0.15", "--json").json()
+    assert spec["required_per_group"] == sized["enrolment_per_group"] == spec["planned_per_group"]
+    assert spec["analysable_per_group"] == sized["n_per_group"] == spec["sequential"]["max_n_per_group"]
+    assert {f["kind"] for f in spec["findings"]} == {"sequential-design", "assurance"}
+
+
+def test_events_only_log_rank_with_looks_gives_the_inflated_events(tmp_path, run):
+    payload = run("size", "log-rank", "--hr", "0.6", "--looks", "3", "--json").json()
+    # Schoenfeld (1983): 121 events for hr 0.6 (common practice); the looks inflate them as size_sequential does
+    assert payload["events"] == 121
+    from registry.power.sequential_size import plan_for
+
+    most = math.ceil(plan_for(design_from_params("log-rank", hr=0.6, event_probability=0.7,
+                                                 sequential={"looks": 3})).inflation * 121)
+    assert f"the maximum is {most} events" in payload["sequential_events"]
+    assert f"the maximum is {most} events" in run("size", "log-rank", "--hr", "0.6", "--looks", "3").out
+    spec = SPEC.replace("two-sample-t", "log-rank").replace("    difference: 6.0\n    sd: 10.0\n", "    hr: 0.6\n")
+    (tmp_path / "lesion-volume.yaml").write_text(spec.format(n=80, looks=""), encoding="utf-8")
+    _, checked = _spec(run, tmp_path)
+    (finding,) = [f for f in checked["findings"] if f["kind"] == "events-only"]
+    assert f"the maximum is {most} events" in finding["message"]
+
+
+def test_power_at_n_with_looks_names_the_sequential_method(run):
+    out = run("size", "two-sample-t", "--d", "0.5", "--looks", "3", "--n", "10").out
+    (method,) = [line for line in out.splitlines() if line.strip().startswith("method")]
+    assert "group-sequential" in method
+    looks = [line for line in out.splitlines() if line.strip().startswith("look ")]
+    assert len(looks) == 3 and all("not 10" in line for line in looks)

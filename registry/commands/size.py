@@ -431,17 +431,21 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
 def _print_events(design: DesignBase, answer: EventsOnly, as_json: bool) -> None:
     """The answer of an event-driven design stated without event information: events only."""
     from ..checks import CAUTION
+    from ..power.sequential_size import sequential_events
     from ..report import console
 
     family = design.family
+    looks = sequential_events(design, answer.events)
     if as_json:
         print(json.dumps({"test": family.name, "events": answer.events, "n_per_group": None,
                           "method": family.method, "reference": family.reference, "message": answer.message,
-                          "caution": CAUTION}, indent=2, ensure_ascii=False))
+                          "sequential_events": looks, "caution": CAUTION}, indent=2, ensure_ascii=False))
         return
     out = console()
     out.print(f"Events needed: {family.title} ({family.name})")
-    out.print(f"  events     {answer.events:,}", soft_wrap=True)
+    out.print(f"  events     {answer.events:,}{' for a single analysis' if looks else ''}", soft_wrap=True)
+    if looks:
+        out.print(f"  sequential {looks}", soft_wrap=True)
     out.print(f"  enrolment  not computed: {answer.message}", soft_wrap=True)
     out.print(f"  reference  {family.reference}", soft_wrap=True)
     out.print()
@@ -622,7 +626,12 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
         rows.append(("simulated", f"{sim.power:.4f} ± {sim.standard_error:.4f} (SE; {sim.reps:,} simulated "
                      f"experiments, {sim.distribution} outcome, seed {sim.seed})"))
     rows.extend(staged_rows)
-    rows.append(("method", result.method if isinstance(result, SampleSize) else family.method))
+    if isinstance(result, SampleSize):
+        rows.append(("method", result.method))
+    elif design.sequential is not None and design.sequential.count > 1:
+        rows.append(("method", f"{_kind(design)}; the detectable effect: {family.method}"))
+    else:
+        rows.append(("method", family.method))
     rows.append(("reference", family.reference))
     for note in result.notes:
         rows.append(("note", note))

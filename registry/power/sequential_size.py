@@ -21,8 +21,12 @@ from .sequential import GroupSequential, InvalidSequential, crossing_probabiliti
 from .sequential_plan import SEQUENTIAL_FAMILIES
 from .solve import enrolment
 
-__all__ = ["SequentialSize", "plan_for", "size_sequential", "sequential_power", "direction", "apply_to_sample",
-           "apply_to_power"]
+__all__ = ["SEQUENTIAL_LABEL", "SEQUENTIAL_METHOD", "SequentialSize", "sequential_events", "plan_for",
+           "size_sequential", "sequential_power", "direction", "apply_to_sample", "apply_to_power"]
+
+#: How the power of a design with interim looks is obtained (the boundary crossing probabilities).
+SEQUENTIAL_LABEL = "normal approximation: boundary crossing of the normal-theory statistic"
+SEQUENTIAL_METHOD = "group-sequential test, boundaries by numerical integration of the normal-theory statistic"
 
 
 @dataclass(frozen=True)
@@ -137,6 +141,17 @@ def size_sequential(design: DesignBase, fixed: SampleSize) -> SequentialSize:
     )
 
 
+def sequential_events(design: DesignBase, events: int) -> str | None:
+    """For a design known only by its events: the interim looks' maximum and per-look events, as a sentence."""
+    if design.sequential is None or design.sequential.count <= 1:
+        return None
+    plan = plan_for(design)
+    most = math.ceil(plan.inflation * events - 1e-9)
+    looks = ", ".join(str(math.ceil(t * most - 1e-9)) for t in plan.fractions)
+    return (f"with the interim looks ({design.sequential.describe()}) the maximum is {most} events "
+            f"(inflation {plan.inflation:.4f} over the fixed design's {events}), analysed at {looks} events")
+
+
 def sequential_power(size: SequentialSize, n_per_group: int) -> float:
     """Power of the sequential test when the maximum analysable n is ``n_per_group`` (same fractions)."""
     plan = size.plan
@@ -151,11 +166,25 @@ def apply_to_sample(sample: SampleSize, size: SequentialSize, design: DesignBase
     """The fixed design's result with the maximum n in its place (what check compares with the plan)."""
     sizes = design.family.group_sizes(design, size.max_n_per_group)
     enrolled = tuple(enrolment(g, design.attrition) for g in sizes)
+    sequential = {}
+    if size.plan.looks > 1:  # the power is the boundaries' (normal theory), not the fixed design's method
+        sequential = dict(label=SEQUENTIAL_LABEL, verification=None, start_n=None, start_method=None,
+                          method=f"{SEQUENTIAL_METHOD}; maximum n = inflation x the fixed design's "
+                                 f"{size.fixed_n_per_group} ({_fixed_method(sample)})",
+                          notes=tuple(f"fixed design: {note}" for note in sample.notes) + size.notes)
     return replace(sample, n_per_group=size.max_n_per_group, n_total=sum(sizes), group_sizes=sizes,
                    enrolment_per_group=enrolled[0], enrolment_total=sum(enrolled),
                    achieved_power=sequential_power(size, size.max_n_per_group),
                    events=size.max_events if size.max_events is not None else sample.events,
-                   notes=sample.notes + size.notes)
+                   **{"notes": sample.notes + size.notes, **sequential})
+
+
+def _fixed_method(sample: SampleSize) -> str:
+    """How the fixed design's n was found, with the Monte Carlo facts when it was simulated."""
+    sim = sample.verification
+    if sim is None:
+        return sample.method
+    return f"{sample.method}; {sim['reps']:,} simulated experiments per n, seed {sim['seed']}"
 
 
 def apply_to_power(at: PowerAtN, size: SequentialSize) -> PowerAtN:

@@ -325,7 +325,9 @@ def _justification(report: SpecReport) -> str:
     elif has_spread(family):
         sentences.append("The source of the standard deviation is not stated.")
     sentences += _further_assumptions(design)
-    sentences.append(f"Method of calculation: {md.inline(family.method)} "
+    # with interim looks the power is the boundaries' and the fixed design's method is part of the sentence
+    method = sample.method if report.sequential is not None else family.method
+    sentences.append(f"Method of calculation: {md.inline(method)} "
                      f"({md.inline(family.reference).rstrip('.')}).")
     counted = _counted(family)
     total = f" ({_num(sample.n_total)} in total)" if sample.n_total != sample.n_per_group else ""
