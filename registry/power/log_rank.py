@@ -239,15 +239,17 @@ class LogRank(Family):
         effect = design.effect
         n1, n2 = self.group_sizes(design, n)
         group2 = np.r_[np.zeros(n1, dtype=bool), np.ones(n2, dtype=bool)]
+        # each group and each random component in a call of its own: common random numbers across n
         if effect.event_probability is None:
             hazard1 = math.log(2) / effect.median_control
-            entry = rng.uniform(0.0, effect.accrual, size=(reps, n1 + n2))
+            entry = np.hstack([rng.uniform(0.0, effect.accrual, size=(reps, n1)),
+                               rng.uniform(0.0, effect.accrual, size=(reps, n2))])
             censor = effect.accrual + effect.follow_up - entry
         else:
             hazard1 = 1.0
             censor = np.full((reps, n1 + n2), self._censoring_time(effect.event_probability, effect.hr, n1, n2))
-        hazard = np.where(group2, hazard1 * effect.hr, hazard1)
-        survival = rng.exponential(1.0, size=(reps, n1 + n2)) / hazard
+        survival = np.hstack([rng.standard_exponential(size=(reps, n1)) / hazard1,
+                              rng.standard_exponential(size=(reps, n2)) / (hazard1 * effect.hr)])
         event = survival <= censor
         z = log_rank_z(np.minimum(survival, censor), event, group2)
         if design.alternative == "two-sided":

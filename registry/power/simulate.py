@@ -1,9 +1,11 @@
 """Monte Carlo power: run a family's simulator in seeded, vectorized chunks.
 
-One run is fully determined by the design, ``n``, ``reps``, ``seed`` and ``distribution``:
-a single :class:`numpy.random.Generator` seeded with ``seed`` feeds every chunk in turn, and
-each family's simulator draws a chunk in one call filled one replicate after another
-(:mod:`registry.power.shapes`), so the chunk size (memory) never changes the answer.
+One run is fully determined by the design, ``n``, ``reps``, ``seed`` and ``distribution``. The
+random numbers come from :class:`registry.power.streams.UnitStreams`: blocks of replicates with
+streams of their own derived from ``seed``, each draw generated unit after unit, so the chunks a
+run is split into (memory) never change the answer, and runs at different n share their random
+numbers (common random numbers: the experiment at n + 1 is the one at n with one more unit per
+group, for simulators that draw each group in a call of its own).
 
 The estimate is the fraction of simulated experiments whose analysis rejects H0, with the
 binomial standard error ``sqrt(p (1 - p) / reps)`` (Morris, T. P., White, I. R. & Crowther,
@@ -29,6 +31,7 @@ import numpy as np
 from .assumptions import DEFAULT_REPS, DEFAULT_SEED, MAX_REPS
 from .base import DesignBase
 from .shapes import InvalidSimulation
+from .streams import BLOCK, UnitStreams
 
 __all__ = ["SimulatedPower", "simulated_power", "simulate_plan", "standard_error", "DEFAULT_SEED",
            "DEFAULT_REPS", "InvalidSimulation"]
@@ -89,7 +92,8 @@ def simulated_power(
     binary, or the distribution a rank-test design assumes). Each simulated test runs at the
     per-test alpha (``alpha / k`` with a multiplicity block). ``progress(done, total)`` is called
     after each chunk (for a progress bar on long runs); ``chunk`` overrides the replicates per
-    chunk (memory only: the answer is the same).
+    chunk, rounded down to whole blocks of :data:`registry.power.streams.BLOCK` (memory only: the
+    answer is the same).
     Raises :class:`InvalidSimulation` (a ``ValueError``) for a request the family cannot simulate.
     """
     family = design.family
@@ -107,16 +111,19 @@ def simulated_power(
         raise InvalidSimulation(f"reps must be between 1 and {MAX_REPS:,}; got {reps!r}")
     if n < family.min_n:
         raise InvalidSimulation(f"n must be at least {family.min_n} for the {family.title}; got {n}")
-    rng = np.random.default_rng(seed)
     design = design.as_tested()
     size = chunk if chunk is not None else chunk_reps(design, n)
     if size < 1:
         raise InvalidSimulation(f"chunk must be at least 1; got {size!r}")
+    per_chunk = max(1, size // BLOCK)  # whole blocks, so the chunk size never changes the answer
     rejected = done = 0
+    first = 0
     while done < reps:
-        step = min(size, reps - done)
+        step = min(per_chunk * BLOCK, reps - done)
+        rng = UnitStreams(seed, first, step)
         rejected += int(np.count_nonzero(family.simulate(design, n, step, rng, distribution)))
         done += step
+        first += per_chunk
         if progress is not None:
             progress(done, reps)
     p = rejected / reps
