@@ -272,7 +272,7 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | N
         report.add(
             "partial-clusters", "error", "sample_size.per_group",
             f"planned {planned} {unit} is not a whole number of clusters of {sample.cluster_size}: enrol "
-            f"{sample.enrolment_words()} (power at the planned n would be {power_text(at.power, design.power)}, "
+            f"{sample.enrolment_words()} ({_power_word(at)} at the planned n would be {power_text(at.power, design.power)}, "
             f"which reaches the target {design.power:g}, but the design randomises whole clusters)",
             loc,
         )
@@ -280,10 +280,10 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | N
         if at is None:
             achieved = f"leaves fewer than {family.min_n} analysable units, below the target {design.power:g}"
         elif at.power >= design.power:  # exact power not monotone in n: this n reaches it, some larger do not
-            achieved = (f"gives power {power_text(at.power, design.power)}, at the target {design.power:g} at this n "
+            achieved = (f"gives {_power_word(at)} {power_text(at.power, design.power)}, at the target {design.power:g} at this n "
                         "only (some larger n fall below it)")
         else:
-            achieved = f"gives power {power_text(at.power, design.power)}, below the target {design.power:g}"
+            achieved = f"gives {_power_word(at)} {power_text(at.power, design.power)}, below the target {design.power:g}"
         report.add(
             "underpowered", "error", "sample_size.per_group",
             f"planned {planned} {unit}{after} {achieved}; "
@@ -295,7 +295,7 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | N
         report.add(
             "oversized", "warning", "sample_size.per_group",
             f"planned {planned} {unit} is {extra / required:.0%} more than the {required} needed for power "
-            f"{design.power:g} (power at the planned n: {report.at_planned.power:.3f}); {extra} more units "
+            f"{design.power:g} ({_power_word(report.at_planned)} at the planned n: {report.at_planned.power:.3f}); {extra} more units "
             f"{'per group ' if family.groups > 1 else ''}than the design needs, reduce the enrolment or justify it",
             loc,
         )
@@ -303,21 +303,16 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | N
 
 def _simulated_at(design: Any, n: int, at: PowerAtN, verification: dict[str, Any], root: Path | None) -> PowerAtN:
     """The planned n's power from the same simulation that verified the size (cached with it)."""
-    import dataclasses
+    from .power.cache import default_cache_dir
+    from .power.verify import verified_power_at
 
-    from .power.cache import SizeCache, cache_key, default_cache_dir
-    from .power.simulate import simulated_power
-    from .power.verify import ALGORITHM
+    return verified_power_at(design, n, reps=verification["reps"], seed=verification["seed"],
+                             cache_dir=default_cache_dir(root))
 
-    reps, seed, distribution = verification["reps"], verification["seed"], verification["distribution"]
-    cache = SizeCache(default_cache_dir(root))
-    key = cache_key("simulated-power", {"design": design.model_dump(mode="json"), "n": n, "reps": reps,
-                                        "seed": seed, "distribution": distribution, "algorithm": ALGORITHM})
-    found = cache.get(key)
-    if found is None:
-        found = {"power": simulated_power(design, n, reps=reps, seed=seed, distribution=distribution).power}
-        cache.put(key, found)
-    return dataclasses.replace(at, power=float(found["power"]))
+
+def _power_word(at: PowerAtN | None) -> str:
+    """The words for the power at the planned n: "simulated power" where it comes from simulating the test."""
+    return "simulated power" if at is not None and at.verification is not None else "power"
 
 
 def _analysable_note(analysable: int, attrition: float) -> str:
@@ -343,7 +338,10 @@ def _simulation(report: SpecReport, spec: Spec) -> None:
         "simulated-power", "info", "design.simulation",
         f"simulated power at the planned {at.n_per_group} analysable {unit}: {sim.power:.3f} ± "
         f"{sim.standard_error:.3f} (SE; {sim.reps:,} simulated experiments, {sim.distribution} outcome, "
-        f"seed {sim.seed}); {_power_label(report)} power {at.power:.3f}", loc,
+        f"seed {sim.seed}); " + (
+            f"the same simulation verified the size; the formula ({design.family.method}) gives {at.formula_power:.3f}"
+            if at.verification is not None and at.formula_power is not None else
+            f"{_power_label(report)} power {at.power:.3f}"), loc,
     )
     if at.power >= design.power and sim.power < design.power - 3 * sim.standard_error:
         report.add(

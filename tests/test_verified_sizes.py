@@ -14,7 +14,7 @@ from statsmodels.duration.survfunc import survdiff
 
 from registry.checks import check_file
 from registry.discovery import SpecFile
-from registry.power import design_from_params, sample_size
+from registry.power import design_from_params, power, sample_size
 from registry.power.cache import SizeCache
 from registry.power.log_rank import log_rank_z
 from registry.power.simulate import simulated_power
@@ -187,3 +187,59 @@ def test_size_with_workers_gives_the_same_verified_answer(run, tmp_path, monkeyp
     assert (data["n_per_group"], data["achieved_power"]) == (alone.n_per_group, alone.achieved_power)
     assert data["label"] == "simulation" and data["start_n"] == alone.start_n
     assert run("size", "log-rank", "--hr", "0.5", "--workers", "0").status == 2
+
+
+def test_size_at_n_reports_the_simulated_power_of_the_test(run, tmp_path, monkeypatch):
+    # `size --n` for a simulation-verified family: the power is the simulated test's, with its
+    # replicates, seed and standard error; the formula's power is given beside it. At the verified
+    # n it is the search's own estimate (same settings, common random numbers).
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path))
+    design = design_from_params("log-rank", hr=0.5, event_probability=0.8, simulation={"reps": 2000})
+    verified = verified_sample_size(design)
+    argv = ("size", "log-rank", "--hr", "0.5", "--param", "event_probability=0.8", "--simulate", "2000")
+    result = run(*argv, "--n", str(verified.n_per_group), "--json")
+    assert result.status == 0, result.err
+    data = result.json()
+    assert data["power"] == verified.achieved_power
+    assert data["power"] == simulated_power(design, verified.n_per_group, reps=2000, seed=data["verification"]["seed"]).power
+    assert data["verification"]["reps"] == 2000
+    assert data["verification"]["standard_error"] == pytest.approx(math.sqrt(data["power"] * (1 - data["power"]) / 2000))
+    formula = power("log-rank", verified.n_per_group, hr=0.5, event_probability=0.8)
+    assert data["formula_power"] == pytest.approx(formula.power, rel=1e-12)
+    below = run(*argv, "--n", str(verified.n_per_group - 1), "--json").json()
+    assert below["power"] == verified.verification["power_below"] < 0.8
+    human = run(*argv, "--n", str(verified.n_per_group))
+    assert "simulation of the Log-rank test" in human.out and "2,000 simulated experiments" in human.out
+    assert "formula" in human.out and "Monte Carlo standard error" in human.out
+
+
+def test_size_at_n_of_a_formula_family_is_not_simulated(run):
+    data = run("size", "two-sample-t", "--d", "0.5", "--n", "64", "--json").json()
+    assert data["verification"] is None and data["formula_power"] is None
+
+
+def test_check_names_the_simulated_power_in_its_finding(tmp_path):
+    text = textwrap.dedent("""\
+        id: wound-closure
+        title: Time to wound closure with two dressings
+        status: draft
+        data_collection:
+          start: 2028-01-01
+        design:
+          test: log-rank
+          effect:
+            hr: 0.5
+            event_probability: 0.8
+          simulation:
+            reps: 2000
+        sample_size:
+          per_group: 30
+        """)
+    path = tmp_path / "wound-closure.yaml"
+    path.write_text(text, encoding="utf-8")
+    report = check_file(SpecFile(path=path, display="wound-closure.yaml", root=tmp_path))
+    design = design_from_params("log-rank", hr=0.5, event_probability=0.8, simulation={"reps": 2000})
+    assert report.at_planned.power == simulated_power(design, 30, reps=2000, seed=design.simulation.seed).power
+    assert report.at_planned.verification["reps"] == 2000
+    finding = next(f for f in report.findings if f.kind == "underpowered")
+    assert f"simulated power {report.at_planned.power:.3f}" in finding.message

@@ -383,14 +383,14 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
     A design whose size is an approximation (:func:`registry.power.verify.needs_verification`) gets
     the simulation-verified n, searched in ``workers`` processes."""
     from ..checks import CAUTION
-    from ..power import EventsOnly, InfeasibleDesign, power_at
+    from ..power import EventsOnly, InfeasibleDesign, PowerAtN
     from ..power.simulate import InvalidSimulation
 
     design = _build(test, params, simulate, seed, distribution)
     try:
         result: SampleSize | PowerAtN
         if n is not None:
-            result = power_at(design, n)
+            result = _power_at_n(design, n, as_json)
         else:
             result = _verified(design, workers, as_json)
     except InvalidSimulation as error:
@@ -411,7 +411,14 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
         except InfeasibleDesign as error:
             raise UsageError(f"the {test} design has no answer ({error.field}): {error.message}") from None
     sim = None
-    if design.simulation is not None:
+    verification = getattr(result, "verification", None)
+    if design.simulation is not None and verification is not None:  # the verification ran the spec's simulation
+        from ..power.simulate import SimulatedPower
+
+        power = result.power if isinstance(result, PowerAtN) else result.achieved_power
+        sim = SimulatedPower(design.test, result.n_per_group, power, verification["standard_error"],
+                             verification["reps"], verification["seed"], verification["distribution"])
+    elif design.simulation is not None:
         try:
             sim = _simulate(design, result.n_per_group, as_json)
         except InvalidSimulation as error:
@@ -482,6 +489,28 @@ def _verified(design: DesignBase, workers: int, quiet: bool) -> SampleSize:
             progress = lambda done, total: bar.update(task, completed=done)  # noqa: E731
         return verified_sample_size(design, executor=executor, progress=progress,
                                     cache_dir=default_cache_dir(None))
+
+
+def _power_at_n(design: DesignBase, n: int, quiet: bool) -> PowerAtN:
+    """Power at ``n``: simulated for a design whose size is simulation-verified, else exact or formula."""
+    from ..power import power_at
+    from ..power.verify import needs_verification
+
+    if not needs_verification(design) or design.family.events_only(design):
+        return power_at(design, n)
+    from ..power.cache import default_cache_dir
+    from ..power.verify import verified_power_at
+    from ..report import console
+
+    if quiet or not sys.stderr.isatty():
+        return verified_power_at(design, n, cache_dir=default_cache_dir(None))
+    from rich.progress import BarColumn, Progress, TaskProgressColumn, TextColumn, TimeRemainingColumn
+
+    with Progress(TextColumn("simulating the test"), BarColumn(), TaskProgressColumn(), TimeRemainingColumn(),
+                  console=console(sys.stderr), transient=True) as bar:
+        task = bar.add_task("simulating", total=None)
+        update: Callable[[int, int], None] = lambda done, total: bar.update(task, completed=done, total=total)
+        return verified_power_at(design, n, progress=update, cache_dir=default_cache_dir(None))
 
 
 def _simulate(design: DesignBase, n: int, quiet: bool) -> SimulatedPower:
@@ -613,21 +642,34 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
         if result.start_n is not None:
             rows.append(("start", f"n = {result.start_n:,} {result.unit} by the formula ({result.start_method}), "
                                   "where the search began"))
+    elif result.verification is not None:
+        mc = result.verification
+        rows.append(("power", f"{result.power:.4f} (simulation of the {family.title}: {mc['reps']:,} simulated "
+                              f"experiments, {mc['distribution']} outcome, seed {mc['seed']}, Monte Carlo standard "
+                              f"error {mc['standard_error']:.4f})"))
+        if result.formula_power is not None:
+            rows.append(("formula", f"{result.formula_power:.4f} ({family.method}; the simulated power is what "
+                                    "the test delivers)"))
     else:
         rows.append(("power", f"{result.power:.4f} ({_kind(design)})"))
+    if not isinstance(result, SampleSize):
+        by_formula = " (by the formula)" if result.verification is not None else ""
         if result.minimum_detectable_effect is None:
-            rows.append(("detectable", f"no effect reaches power {result.target_power:g} at this n"))
+            rows.append(("detectable", f"no effect reaches power {result.target_power:g} at this n{by_formula}"))
         else:
             natural = {k: v for k, v in result.minimum_detectable_natural.items() if k != result.symbol}
             extra = (" (" + ", ".join(f"{k} {_g(v)}" for k, v in natural.items()) + ")") if natural else ""
             rows.append(("detectable", f"{result.symbol} = {_g(result.minimum_detectable_effect)}{extra} reaches "
-                         f"power {result.target_power:g} at this n"))
-    if sim is not None:
+                         f"power {result.target_power:g} at this n{by_formula}"))
+    if sim is not None and getattr(result, "verification", None) is None:
         rows.append(("simulated", f"{sim.power:.4f} ± {sim.standard_error:.4f} (SE; {sim.reps:,} simulated "
                      f"experiments, {sim.distribution} outcome, seed {sim.seed})"))
     rows.extend(staged_rows)
     if isinstance(result, SampleSize):
         rows.append(("method", result.method))
+    elif result.verification is not None:
+        rows.append(("method", f"simulation of the {family.title} at this n, with the settings of the size search; "
+                               f"the formula: {family.method}"))
     elif design.sequential is not None and design.sequential.count > 1:
         rows.append(("method", f"{_kind(design)}; the detectable effect: {family.method}"))
     else:

@@ -116,6 +116,12 @@ class PowerAtN:
     #: ``floor(n_per_group / design_effect)``, at which power is computed.
     design_effect: float | None = None
     effective_n_per_group: int | None = None
+    #: For a simulation-verified family (:func:`registry.power.verify.verified_power_at`): ``power`` is
+    #: the simulated power of the test, ``formula_power`` the formula's, and ``verification`` holds the
+    #: replicates, seed, outcome distribution and Monte Carlo standard error. The minimum detectable
+    #: effect stays the formula's.
+    formula_power: float | None = None
+    verification: dict[str, Any] | None = None
 
     def __repr__(self) -> str:
         mde = "None" if self.minimum_detectable_effect is None else f"{self.minimum_detectable_effect:.4f}"

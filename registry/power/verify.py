@@ -39,11 +39,11 @@ from typing import Any, Callable
 from .assumptions import DEFAULT_SEED
 from .base import DesignBase, InfeasibleDesign
 from .cache import SizeCache, cache_key
-from .results import SampleSize
+from .results import PowerAtN, SampleSize
 from .simulate import simulated_power
-from .solve import enrolment, solve_sample_size
+from .solve import enrolment, power_at, solve_sample_size
 
-__all__ = ["verified_sample_size", "needs_verification", "VERIFY_REPS", "Progress"]
+__all__ = ["verified_sample_size", "verified_power_at", "needs_verification", "VERIFY_REPS", "Progress"]
 
 #: Replicates per candidate n unless the spec's simulation block says otherwise.
 VERIFY_REPS = 20_000
@@ -225,10 +225,51 @@ def verified_sample_size(
         events=math.ceil(events - 1e-9) if events is not None else formula.events,
         notes=(note, *formula.notes),
         method=(f"simulation: the smallest n at which the simulated {family.title} reaches the target power "
-                "and n - 1 does not, every n from the same seed"),
+                "and n - 1 does not, every n from the same seed with common random numbers"),
         label="simulation",
         start_n=formula.n_per_group,
         start_method=family.method,
         verification={"reps": reps, "seed": seed, "distribution": sim_distribution, "standard_error": se,
                       "power_below": below, "evaluations": int(found["evaluations"])},
     )
+
+
+def verified_power_at(
+    design: DesignBase,
+    n: int,
+    *,
+    reps: int | None = None,
+    seed: int | None = None,
+    progress: Callable[[int, int], None] | None = None,
+    cache_dir: Path | None = None,
+) -> PowerAtN:
+    """Power at ``n`` analysable units per group by simulating the test, as the size search does.
+
+    The settings are those of :func:`verified_sample_size` (the spec's ``design.simulation``, else
+    :data:`VERIFY_REPS` and the default seed), so the power at the verified n is the search's own
+    estimate. ``power`` is the simulated power, ``formula_power`` the formula's; ``verification``
+    holds the replicates, seed, outcome and Monte Carlo standard error. The minimum detectable
+    effect is the formula's. Cached like the sizes.
+
+    >>> from registry.power import design_from_params
+    >>> at = verified_power_at(design_from_params("log-rank", hr=0.5, event_probability=0.8), 42, reps=2000)
+    >>> at.power, round(at.formula_power, 4), at.verification["reps"]
+    (0.8095, 0.8103, 2000)
+    """
+    formula = power_at(design, n)
+    reps, seed, distribution = _settings(design, reps, seed)
+    family = design.family
+    sim_distribution = distribution or family.default_distribution(design.as_tested())
+    cache = SizeCache(cache_dir)
+    key = cache_key("simulated-power", {"design": design.model_dump(mode="json"), "n": n, "reps": reps,
+                                        "seed": seed, "distribution": distribution, "algorithm": ALGORITHM})
+    found = cache.get(key)
+    if found is None:
+        found = {"power": simulated_power(design, n, reps=reps, seed=seed, distribution=distribution,
+                                          progress=progress).power}
+        cache.put(key, found)
+    achieved = float(found["power"])
+    se = math.sqrt(achieved * (1 - achieved) / reps)
+    return dataclasses.replace(
+        formula, power=achieved, formula_power=formula.power,
+        verification={"reps": reps, "seed": seed, "distribution": sim_distribution, "standard_error": se})
