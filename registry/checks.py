@@ -251,6 +251,17 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | N
     if not verify:
         for doubt in family.doubts(design):
             report.add("approximate-size", "warning", "design.test", doubt, ("design", "test"))
+    if design.cluster is not None and not family.cluster_means:
+        count = sample.clusters_per_group[0] if sample.clusters_per_group else None
+        clusters = f" ({count} clusters per group)" if count is not None else ""
+        report.add(
+            "approximate-size", "warning", "design.cluster",
+            f"the clustered size{clusters} is the {family.title}'s n times the design effect "
+            f"{design.design_effect:.4g}, an approximation that assumes many clusters and an analysis that "
+            "accounts for them; prespec does not simulate clustered designs of this family, so the size is not "
+            "verified. With few clusters per group a cluster-level analysis has less power than this promises: "
+            "have the planned clustered analysis checked by a statistician or by a simulation of it "
+            "(docs/methods.md, Clustered designs)", ("design", "cluster"))
     for note in sample.notes:
         report.add("method-note", "info", "design", note, ("design",))
     planned = spec.sample_size.per_group

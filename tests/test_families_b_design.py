@@ -159,8 +159,12 @@ def test_bad_cluster_blocks_are_explained(cluster, message):
 
 
 def test_clustered_simulation_is_refused_clearly():
+    # Only the cluster-means t-test is simulated with clusters (normal outcomes, whole clusters).
     with pytest.raises(ValueError, match="not offered"):
-        simulated_power(design_from_params("two-sample-t", d=0.5, cluster=CLUSTER), 93, reps=10)
+        simulated_power(design_from_params("welch-t", difference=1.0, sd1=1.0, sd2=2.0, cluster=CLUSTER), 93, reps=10)
+    with pytest.raises(ValueError, match="normal outcomes"):
+        simulated_power(design_from_params("two-sample-t", d=0.5, cluster=CLUSTER), 93, reps=10, distribution="lognormal")
+    assert simulated_power(design_from_params("two-sample-t", d=0.5, cluster=CLUSTER), 93, reps=10).reps == 10
 
 
 @pytest.mark.parametrize("test", list(EXAMPLES))

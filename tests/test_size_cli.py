@@ -16,7 +16,8 @@ SAMPLE_KEYS = {"test", "n_per_group", "n_total", "achieved_power", "target_power
                "verification"}
 POWER_KEYS = {"test", "n_per_group", "n_total", "power", "alpha", "alternative", "target_power", "effect_size",
               "symbol", "minimum_detectable_effect", "minimum_detectable_natural", "group_sizes", "unit", "events",
-              "notes", "simulation", "caution", "alpha_per_test", "design_effect", "effective_n_per_group"}
+              "notes", "simulation", "caution", "alpha_per_test", "design_effect", "effective_n_per_group",
+              "formula_power", "verification"}
 
 
 def _smallest_two_sample(d, alpha=0.05, power=0.8, ratio=1.0, alternative="two-sided"):

@@ -621,6 +621,7 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
                  staged_rows: list[tuple[str, str]] = ()) -> None:
     from ..checks import CAUTION
     from ..power import SampleSize, enrolment
+    from ..power.verify import formula_method
     from ..report import console
 
     family = design.family
@@ -648,8 +649,8 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
                               f"experiments, {mc['distribution']} outcome, seed {mc['seed']}, Monte Carlo standard "
                               f"error {mc['standard_error']:.4f})"))
         if result.formula_power is not None:
-            rows.append(("formula", f"{result.formula_power:.4f} ({family.method}; the simulated power is what "
-                                    "the test delivers)"))
+            rows.append(("formula", f"{result.formula_power:.4f} ({formula_method(design)}; the simulated power "
+                                    "is what the test delivers)"))
     else:
         rows.append(("power", f"{result.power:.4f} ({_kind(design)})"))
     if not isinstance(result, SampleSize):
@@ -669,7 +670,7 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
         rows.append(("method", result.method))
     elif result.verification is not None:
         rows.append(("method", f"simulation of the {family.title} at this n, with the settings of the size search; "
-                               f"the formula: {family.method}"))
+                               f"the formula: {formula_method(design)}"))
     elif design.sequential is not None and design.sequential.count > 1:
         rows.append(("method", f"{_kind(design)}; the detectable effect: {family.method}"))
     else:

@@ -73,6 +73,8 @@ def standard_error(power: float, reps: int) -> float:
 def chunk_reps(design: DesignBase, n: int) -> int:
     """Replicates per chunk so that one chunk holds about ``_CHUNK_CELLS`` simulated values."""
     per_rep = max(1, sum(design.family.group_sizes(design, n)))
+    if design.cluster is not None:  # clustered designs are simulated on cluster means
+        per_rep = max(1, per_rep // design.cluster.size)
     return max(1, _CHUNK_CELLS // per_rep)
 
 
@@ -97,11 +99,19 @@ def simulated_power(
     Raises :class:`InvalidSimulation` (a ``ValueError``) for a request the family cannot simulate.
     """
     family = design.family
+    clusters = None
     if design.cluster is not None:
-        raise InvalidSimulation(
-            "simulating clustered designs is not offered: the simulators draw independent units. "
-            "Simulate the design without its cluster block at n / design effect units per group"
-        )
+        if not family.cluster_means:
+            raise InvalidSimulation(
+                f"simulating clustered {family.name} designs is not offered: the simulator draws independent "
+                "units. Simulate the design without its cluster block at n / design effect units per group")
+        if distribution not in (None, "normal"):
+            raise InvalidSimulation(f"clustered {family.name} designs are simulated with normal outcomes; "
+                                    f"got {distribution!r}")
+        clusters = n // design.cluster.size
+        if clusters < 2:
+            raise InvalidSimulation(f"{n} units make fewer than 2 whole clusters of {design.cluster.size}; the "
+                                    "t-test on cluster means needs at least 2 clusters per group")
     if distribution is None:
         distribution = family.default_distribution(design)
     if distribution not in family.distributions:
@@ -121,7 +131,11 @@ def simulated_power(
     while done < reps:
         step = min(per_chunk * BLOCK, reps - done)
         rng = UnitStreams(seed, first, step)
-        rejected += int(np.count_nonzero(family.simulate(design, n, step, rng, distribution)))
+        if clusters is None:
+            decisions = family.simulate(design, n, step, rng, distribution)
+        else:  # the test on cluster means (families with cluster_means)
+            decisions = family.simulate_clusters(design, clusters, step, rng)
+        rejected += int(np.count_nonzero(decisions))
         done += step
         first += per_chunk
         if progress is not None:

@@ -43,7 +43,8 @@ from .results import PowerAtN, SampleSize
 from .simulate import simulated_power
 from .solve import enrolment, power_at, solve_sample_size
 
-__all__ = ["verified_sample_size", "verified_power_at", "needs_verification", "VERIFY_REPS", "Progress"]
+__all__ = ["verified_sample_size", "verified_power_at", "needs_verification", "formula_method", "VERIFY_REPS",
+           "Progress"]
 
 #: Replicates per candidate n unless the spec's simulation block says otherwise.
 VERIFY_REPS = 20_000
@@ -60,16 +61,28 @@ ALGORITHM = 3
 def needs_verification(design: DesignBase) -> bool:
     """Whether this design's size should come from simulating its test.
 
-    True for families whose size is an approximation (``Family.verify_by_simulation``) and for
-    designs whose ``design.simulation`` names an outcome other than the family's own model; False
-    for clustered designs (the simulators draw independent units)."""
-    if design.cluster is not None:
-        return False
+    True for families whose size is an approximation (``Family.verify_by_simulation``), for
+    designs whose ``design.simulation`` names an outcome other than the family's own model, and
+    for the t-test on cluster means with unequal cluster sizes (``cluster.size_cv > 0``); False for
+    other clustered designs (their simulators draw independent units: the design effect is
+    labelled an approximation instead)."""
     family = design.family
+    if design.cluster is not None:  # only the cluster-means t with unequal cluster sizes is simulated
+        plan = design.simulation
+        normal = plan is None or plan.distribution in (None, "normal")
+        return family.cluster_means and design.cluster.size_cv > 0 and normal
     if getattr(family, "verify_by_simulation", False):
         return True
     plan = design.simulation
     return plan is not None and plan.distribution is not None and plan.distribution != family.distributions[0]
+
+
+def formula_method(design: DesignBase) -> str:
+    """The formula a verified design's search starts from, in words (its label included)."""
+    if design.cluster is not None:
+        return ("approximation for unequal cluster sizes: the noncentral t on cluster means, df = k1 + k2 - 2, "
+                "each mean with the first-order variance icc + (1 - icc)(1 + cv^2) / m")
+    return design.family.method
 
 
 def _settings(design: DesignBase, reps: int | None, seed: int | None) -> tuple[int, int, str | None]:
@@ -81,7 +94,9 @@ def _settings(design: DesignBase, reps: int | None, seed: int | None) -> tuple[i
 
 
 def _task(args: tuple[str, dict[str, Any], int, int, int, str | None]) -> float:
-    """One candidate n (runs in a worker process too: the design travels as JSON)."""
+    """One candidate n (runs in a worker process too: the design travels as JSON).
+
+    For a clustered design the candidate is whole clusters in group 1, ``n`` their units."""
     test, data, n, reps, seed, distribution = args
     from .catalog import get_family
 
@@ -96,6 +111,8 @@ class _Search:
         self.data = design.model_dump(mode="json")
         self.reps, self.seed, self.distribution = reps, seed, distribution
         self.executor, self.progress = executor, progress
+        #: units per step of the search: one unit, or one whole cluster of ``cluster.size`` units
+        self.unit = design.cluster.size if design.cluster is not None else 1
         self.known: dict[int, float] = {}
         self.simulated = 0
         workers = getattr(executor, "_max_workers", None) if executor is not None else 1
@@ -104,7 +121,8 @@ class _Search:
     def power(self, ns: list[int]) -> list[float]:
         todo = sorted({n for n in ns if n not in self.known})
         if todo:
-            tasks = [(self.design.test, self.data, n, self.reps, self.seed, self.distribution) for n in todo]
+            tasks = [(self.design.test, self.data, n * self.unit, self.reps, self.seed, self.distribution)
+                     for n in todo]
             if self.executor is None:
                 results = []
                 for task in tasks:
@@ -197,22 +215,35 @@ def verified_sample_size(
     key = cache_key("verified-size", {"design": design.model_dump(mode="json"), "reps": reps, "seed": seed,
                                       "distribution": distribution, "algorithm": ALGORITHM})
     found = cache.get(key)
+    unit = design.cluster.size if design.cluster is not None else 1
+    lowest = 2 if design.cluster is not None else family.min_n  # whole clusters: at least 2 per group
     if found is None:
         search = _Search(design, reps, seed, distribution, executor, progress)
-        n = search.run(formula.n_per_group, family.min_n)
-        below = search.power([n - 1])[0] if n - 1 >= family.min_n else None
-        found = {"n": n, "power": search.power([n])[0], "below": below, "evaluations": len(search.known)}
+        step = search.run(formula.n_per_group // unit, lowest)
+        below = search.power([step - 1])[0] if step - 1 >= lowest else None
+        found = {"n": step * unit, "power": search.power([step])[0], "below": below,
+                 "evaluations": len(search.known)}
         cache.put(key, found)
     n, achieved = int(found["n"]), float(found["power"])
     se = math.sqrt(achieved * (1 - achieved) / reps)
-    sizes = family.group_sizes(design, n)
-    enrolled = tuple(enrolment(g, design.attrition) for g in sizes)
+    clusters = None
+    if design.cluster is not None:  # whole clusters, as the formula's search counts them
+        sizes = tuple(k * unit for k in family.cluster_groups(design, n // unit))
+        enrolled = tuple(enrolment(g, design.attrition) for g in sizes)
+        clusters = tuple(math.ceil(g / unit - 1e-9) for g in enrolled)
+        enrolled = tuple(c * unit for c in clusters)
+    else:
+        sizes = family.group_sizes(design, n)
+        enrolled = tuple(enrolment(g, design.attrition) for g in sizes)
     sim_distribution = distribution or family.default_distribution(design.as_tested())
     below = found.get("below")
-    note = (f"simulated power of the {family.title} at n = {n}: {achieved:.4f} (standard error {se:.4f}, "
+    previous = n - unit
+    on = " on cluster means" if design.cluster is not None else ""
+    note = (f"simulated power of the {family.title}{on} at n = {n}: {achieved:.4f} (standard error {se:.4f}, "
             f"{reps:,} simulated experiments per n, {sim_distribution} outcome, seed {seed})"
-            + (f"; at n = {n - 1}: {below:.4f}" if below is not None else "")
-            + f"; the formula gave {formula.n_per_group} ({family.method})")
+            + (f"; at n = {previous}" + (f" ({previous // unit} clusters)" if unit > 1 else "") + f": {below:.4f}"
+               if below is not None else "")
+            + f"; the formula gave {formula.n_per_group} ({formula_method(design)})")
     events = family.expected_events(design.as_tested(), n)
     return dataclasses.replace(
         formula,
@@ -222,13 +253,20 @@ def verified_sample_size(
         group_sizes=sizes,
         enrolment_per_group=enrolled[0],
         enrolment_total=sum(enrolled),
+        clusters_per_group=clusters if clusters is not None else formula.clusters_per_group,
+        individual_n_per_group=(math.floor(n / design.design_effect + 1e-9) if clusters is not None
+                                else formula.individual_n_per_group),
         events=math.ceil(events - 1e-9) if events is not None else formula.events,
         notes=(note, *formula.notes),
         method=(f"simulation: the smallest n at which the simulated {family.title} reaches the target power "
-                "and n - 1 does not, every n from the same seed with common random numbers"),
+                "and n - 1 does not, every n from the same seed with common random numbers"
+                if design.cluster is None else
+                f"simulation: the fewest whole clusters per group at which the simulated {family.title} on "
+                "cluster means (cluster sizes drawn with the stated coefficient of variation) reaches the target "
+                "power and one cluster fewer does not, every number of clusters from the same seed"),
         label="simulation",
         start_n=formula.n_per_group,
-        start_method=family.method,
+        start_method=formula_method(design),
         verification={"reps": reps, "seed": seed, "distribution": sim_distribution, "standard_error": se,
                       "power_below": below, "evaluations": int(found["evaluations"])},
     )
@@ -254,7 +292,7 @@ def verified_power_at(
     >>> from registry.power import design_from_params
     >>> at = verified_power_at(design_from_params("log-rank", hr=0.5, event_probability=0.8), 42, reps=2000)
     >>> at.power, round(at.formula_power, 4), at.verification["reps"]
-    (0.8095, 0.8103, 2000)
+    (0.8095, 0.8109, 2000)
     """
     formula = power_at(design, n)
     reps, seed, distribution = _settings(design, reps, seed)
