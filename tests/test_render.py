@@ -483,3 +483,32 @@ def test_text_colours_meet_wcag_aa():
             assert _contrast(colours[text], background) >= 4.5, (text, background)
     assert _contrast("#767676", "#ffffff") == pytest.approx(4.54, abs=0.01)  # the well-known lightest AA grey
     assert "@media print" in CSS and "max-width" in CSS
+
+
+def test_sensitivity_of_a_verified_design_says_which_rows_are_simulated(tmp_path, epoch):
+    # The stated design's row is check's simulation-verified size and simulated power; the what-if
+    # rows come from the formula and are labelled so, in the table, the note and the figure's text.
+    spec = tmp_path / "wound-closure.yaml"
+    spec.write_text(
+        "id: wound-closure\ntitle: Time to wound closure with two dressings\nstatus: draft\n"
+        "data_collection:\n  start: 2028-01-01\n"
+        "design:\n  test: log-rank\n  effect:\n    hr: 0.5\n    event_probability: 0.8\n"
+        "  simulation:\n    reps: 1000\n"
+        "sample_size:\n  per_group: 45\n", encoding="utf-8")
+    report, found = _report("wound-closure", tmp_path)
+    summary = build_summary(report, found.path, render_time())
+    stated = _cells(summary.markdown, "as stated")
+    assert stated[2] == str(report.sample.n_per_group) and stated[-1] == "simulation"
+    assert stated[4] == f"{report.at_planned.power:.3f}" and report.at_planned.verification is not None
+    formula_rows = sensitivity(report.spec.design, 45)
+    smaller = _cells(summary.markdown, "effect 20% smaller")
+    assert smaller[-1] == "formula (normal approximation)" and smaller[2] == str(formula_rows[2].n_analysable)
+    assert "The other rows are not simulated" in summary.markdown
+    assert "Power by the formula" in summary.html and "power by the formula" in summary.svg
+    assert "which gives a simulated power of" in summary.markdown
+
+
+def test_sensitivity_of_an_exact_design_has_no_method_column(tmp_path, epoch):
+    report, found = _report("caffeine-reaction-time")
+    summary = build_summary(report, found.path, render_time())
+    assert "| Method |" not in summary.markdown and "power by the formula" not in summary.svg

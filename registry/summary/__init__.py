@@ -48,8 +48,10 @@ def build_summary(report: SpecReport, spec_path: Path, rendered_at: datetime, *,
     planned = analysable(spec.sample_size.per_group, design.attrition)
     shown_planned = planned if planned >= design.family.min_n else None
     marks = [sample.n_per_group] + ([planned] if shown_planned else [])
+    formula = (sample.start_method or design.family.method) if sample.verification is not None else None
     figure = power_figure(power_curve(design, *marks), target=design.power, required=sample.n_per_group,
-                          planned=shown_planned, unit=design.family.unit, figure_id=f"{spec.id}-power")
+                          planned=shown_planned, unit=design.family.unit, figure_id=f"{spec.id}-power",
+                          formula=formula)
     body = insert_figure(markdown_to_html(markdown), figure_name(spec.id), figure_alt(spec.id),
                          inline_svg(figure), figure.description)
     figures: dict[str, str] = {}

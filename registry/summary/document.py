@@ -327,12 +327,15 @@ def _justification(report: SpecReport) -> str:
     sentences += _further_assumptions(design)
     # with interim looks the power is the boundaries' and the fixed design's method is part of the sentence
     method = sample.method if report.sequential is not None else family.method
+    if report.sequential is None and sample.verification is not None:  # the size is the simulated test's
+        method = f"{sample.method}; the search started from {sample.start_method or family.method}"
     sentences.append(f"Method of calculation: {md.inline(method)} "
                      f"({md.inline(family.reference).rstrip('.')}).")
     counted = _counted(family)
     total = f" ({_num(sample.n_total)} in total)" if sample.n_total != sample.n_per_group else ""
+    simulated = "simulated " if sample.verification is not None else ""
     sentences.append(f"At least {_num(sample.n_per_group)} analysable {counted}{total} are needed, which gives a "
-                     f"power of {sample.achieved_power:.3f}.")
+                     f"{simulated}power of {sample.achieved_power:.3f}.")
     if design.attrition:
         enrolled_total = f" ({_num(sample.enrolment_total)} in total)" if sample.n_total != sample.n_per_group else ""
         clusters = (f" ({sample.clusters_per_group[0]:,} clusters of {sample.cluster_size})"
@@ -413,10 +416,13 @@ def _size_table(report: SpecReport) -> str:
     if family.groups == 2 and design.allocation_ratio != 1:
         note += f" Group 2 gets {_num(design.allocation_ratio)} times the units of group 1, rounded up."
     if sample.events is not None:
-        note += (f" The test needs {_num(sample.events)} events in all (the events formula rounded up to whole "
-                 "events); follow the study until they have occurred.")
+        source = ("the events the analysable units are expected to give, rounded up" if sample.verification
+                  is not None else "the events formula rounded up to whole events")
+        note += (f" The test needs {_num(sample.events)} events in all ({source}); follow the study until they "
+                 "have occurred.")
     for extra in sample.notes:
-        note += f" {md.inline(extra)}"
+        text = extra.strip()
+        note += f" {md.inline(text[:1].upper() + text[1:] + ('' if text.endswith('.') else '.'))}"
     return md.table(head, rows, ["l"] + ["r"] * (len(head) - 1)) + "\n\n" + note
 
 
@@ -445,7 +451,9 @@ def _sensitivity(report: SpecReport) -> str:
     assert spec is not None
     design = spec.design
     family = design.family
-    rows = sensitivity(design, spec.sample_size.per_group)
+    sample = report.sample
+    verified = sample is not None and sample.verification is not None and report.sequential is None
+    rows = sensitivity(design, spec.sample_size.per_group, (sample, report.at_planned) if verified else None)
     symbol = md.inline(family.symbol)
 
     def n(value: int | None) -> str:
@@ -454,12 +462,16 @@ def _sensitivity(report: SpecReport) -> str:
     def power(row: Scenario) -> str:
         return "-" if row.power_at_planned is None else f"{row.power_at_planned:.3f}"
 
-    table = md.table(
-        ["Scenario", f"Effect ({symbol})", f"Analysable n needed ({md.inline(family.unit)})",
-         f"Enrolled n needed ({md.inline(family.unit)})", "Power at the planned n"],
-        [(r.label, f"{r.effect_size:.3g}", n(r.n_analysable), n(r.n_enrolled), power(r)) for r in rows],
-        ["l", "r", "r", "r", "r"],
-    )
+    headers = ["Scenario", f"Effect ({symbol})", f"Analysable n needed ({md.inline(family.unit)})",
+               f"Enrolled n needed ({md.inline(family.unit)})", "Power at the planned n"]
+    cells = [[r.label, f"{r.effect_size:.3g}", n(r.n_analysable), n(r.n_enrolled), power(r)] for r in rows]
+    align = ["l", "r", "r", "r", "r"]
+    if verified:
+        headers.append("Method")
+        for row, line in zip(rows, cells):
+            line.append("simulation" if row.method == "simulation" else f"formula ({row.method})")
+        align.append("l")
+    table = md.table(headers, [tuple(line) for line in cells], align)
     if has_spread(family):
         note = (f"A larger SD shrinks the standardized effect: SD 20% larger means {symbol} / 1.2. "
                 f"A smaller effect scales {symbol} directly: 20% smaller means {symbol} x 0.8.")
@@ -467,6 +479,15 @@ def _sensitivity(report: SpecReport) -> str:
         note = (f"This design family ({md.inline(_lower_first(family.title))}) states its effect without a "
                 "standard deviation, so \"SD larger\" has no meaning here and those rows are left out; the rows "
                 f"scale the standardized effect {symbol}.")
+    if verified:
+        assert sample is not None and sample.verification is not None
+        mc = sample.verification
+        note += (f" The first row is the simulation-verified size and the simulated power at the planned n "
+                 f"({_num(mc['reps'])} simulated experiments per n, seed {mc['seed']}). The other rows are not "
+                 f"simulated: they come from the formula the size search starts from "
+                 f"({md.inline(sample.start_method or family.method)}), which for the stated design gives "
+                 f"{_num(sample.start_n)} where the simulated test needs {_num(sample.n_per_group)}. Read them as "
+                 "the direction and rough size of each change, not as verified requirements.")
     return table + "\n\n" + note
 
 

@@ -39,10 +39,12 @@ class PowerFigure:
 
 
 def power_figure(curve: Curve, *, target: float, required: int, planned: int | None, unit: str,
-                 figure_id: str) -> PowerFigure:
+                 figure_id: str, formula: str | None = None) -> PowerFigure:
     """Draw power against analysable n with the target power, the required n and the planned n marked.
 
     ``planned`` is the planned analysable n (None when too few units remain to compute power).
+    ``formula`` names the formula the curve comes from when the required n is simulation-verified
+    (the curve is then the formula's, not the simulated test's, and the legend and text say so).
     """
     # Imported here, not at module level: only rendering needs matplotlib, and importing it costs
     # every other command start-up time (and writes a font cache). Figure draws without pyplot,
@@ -54,11 +56,12 @@ def power_figure(curve: Curve, *, target: float, required: int, planned: int | N
     with matplotlib.rc_context(_RC):
         fig = Figure(figsize=(6.4, 4.0))
         ax = fig.add_subplot()
-        ax.plot(curve.n, curve.power, color=_BLUE, linewidth=2, label="power")
+        ax.plot(curve.n, curve.power, color=_BLUE, linewidth=2,
+                label="power by the formula" if formula is not None else "power")
         ax.axhline(target, color=_GREY, linestyle="--", linewidth=1, label=f"target power {target:g}")
         same = planned == required  # then the two lines alternate dashes, so both stay visible
         ax.axvline(required, color=_BLUE, linestyle=(0, (4, 4)) if same else ":", linewidth=1.8,
-                   label=f"required n = {required:,}")
+                   label=f"required n = {required:,}" + (" (simulation)" if formula is not None else ""))
         if planned is not None:
             at = curve.power[curve.n.index(planned)] if planned in curve.n else None
             ax.axvline(planned, color=_ORANGE, linestyle=(4, (4, 4)) if same else "-.", linewidth=1.8,
@@ -77,12 +80,27 @@ def power_figure(curve: Curve, *, target: float, required: int, planned: int | N
         buffer = io.StringIO()
         fig.savefig(buffer, format="svg", metadata={"Date": None})
     title = "Power curve"
-    description = _describe(curve, target, required, planned, label_unit)
+    description = _describe(curve, target, required, planned, label_unit, formula)
     svg = _label(buffer.getvalue(), title, description, figure_id)
     return PowerFigure(svg, title, description)
 
 
-def _describe(curve: Curve, target: float, required: int, planned: int | None, label_unit: str) -> str:
+def _describe(curve: Curve, target: float, required: int, planned: int | None, label_unit: str,
+              formula: str | None = None) -> str:
+    if formula is not None:
+        reached = next((n for n, p in zip(curve.n, curve.power) if p >= target), None)
+        text = (f"Power by the formula ({formula}) against analysable {label_unit}, from {curve.power[0]:.2f} at "
+                f"n = {curve.n[0]} to {curve.power[-1]:.2f} at n = {curve.n[-1]:,}. ")
+        if reached is not None:
+            text += (f"The formula reaches the target power {target:g} at n = {reached:,}; the simulated test "
+                     "reaches it ")
+        else:
+            text += f"The simulated test reaches the target power {target:g} "
+        text += f"first at n = {required:,}, the required n."
+        if planned is not None and planned in curve.n:
+            text += (f" At the planned analysable n = {planned:,} the formula gives power "
+                     f"{curve.power[curve.n.index(planned)]:.3f}.")
+        return text
     text = (f"Power against analysable {label_unit}, from {curve.power[0]:.2f} at n = {curve.n[0]} to "
             f"{curve.power[-1]:.2f} at n = {curve.n[-1]:,}. The target power {target:g} is first reached "
             f"at n = {required:,}.")

@@ -15,6 +15,7 @@ import numpy as np
 
 from ..power import InfeasibleDesign
 from ..power.base import DesignBase, Family
+from ..power.results import PowerAtN, SampleSize
 from ..power.solve import power_of, solve_sample_size
 
 __all__ = ["Scenario", "Curve", "SCALES", "has_spread", "n_needed", "sensitivity", "power_curve", "analysable"]
@@ -32,6 +33,9 @@ class Scenario:
     n_analysable: int | None
     n_enrolled: int | None
     power_at_planned: float | None
+    #: How the row's n and power were obtained: the family's label (``exact``, ``normal approximation``...)
+    #: or ``simulation`` (the stated design of a simulation-verified family, from check's own result).
+    method: str = "exact"
 
     def __repr__(self) -> str:
         power = "None" if self.power_at_planned is None else f"{self.power_at_planned:.4f}"
@@ -66,10 +70,14 @@ def n_needed(design: DesignBase, effect_size: float | None = None) -> tuple[int,
     return sample.n_per_group, sample.enrolment_per_group
 
 
-def sensitivity(design: DesignBase, planned: int) -> list[Scenario]:
+def sensitivity(design: DesignBase, planned: int, verified: tuple[SampleSize, PowerAtN | None] | None = None,
+                ) -> list[Scenario]:
     """The stated design, then SD 10/20/30% larger (where the family has an SD), then effect 10/20/30% smaller.
 
-    ``planned`` is the planned enrolment of group 1; power is at its analysable part.
+    ``planned`` is the planned enrolment of group 1; power is at its analysable part. Every row comes
+    from the solver (the family's exact power or formula, named in ``method``). ``verified`` is
+    check's simulation-verified size and power at the planned n for the stated design: it replaces
+    the first row (``method`` ``simulation``); the what-if rows stay the formula's, and say so.
 
     >>> from registry.power import design_from_params
     >>> rows = sensitivity(design_from_params("two-sample-t", d=0.5), 64)
@@ -84,11 +92,18 @@ def sensitivity(design: DesignBase, planned: int) -> list[Scenario]:
     if has_spread(family):
         cases += [(f"SD {scale:.0%} larger", es / (1 + scale)) for scale in SCALES]
     cases += [(f"effect {scale:.0%} smaller", es * (1 - scale)) for scale in SCALES]
+    method = family.label(design.as_tested())
     rows = []
     for label, effect in cases:
+        if label == "as stated" and verified is not None:
+            sample, at = verified
+            rows.append(Scenario(label, effect, sample.n_per_group, sample.enrolment_per_group,
+                                 at.power if at is not None else None, sample.label))
+            continue
         needed = n_needed(design, None if label == "as stated" else effect)
         power = float(power_of(design, [kept], effect)[0]) if kept >= family.min_n else None
-        rows.append(Scenario(label, effect, needed[0] if needed else None, needed[1] if needed else None, power))
+        rows.append(Scenario(label, effect, needed[0] if needed else None, needed[1] if needed else None, power,
+                             method))
     return rows
 
 
