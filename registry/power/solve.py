@@ -147,6 +147,17 @@ def _shared_notes(design: DesignBase) -> list[str]:
     return notes
 
 
+def _method(family: Family, design: DesignBase) -> str:
+    """The method of a size: the family's, or for a clustered design sized by the design effect, that
+    approximation first (the family's own method, exact or not, gives only the individual-level n)."""
+    if design.cluster is None:
+        return family.method
+    if _by_cluster_means(family, design):
+        return f"{family.method}, applied to the cluster means (k1 and k2 clusters in place of n1 and n2)"
+    return (f"design-effect approximation: the individual-level n times the design effect "
+            f"{design.design_effect:.4g} (assumes many clusters); the individual-level n: {family.method}")
+
+
 def _by_cluster_means(family: Family, design: DesignBase) -> bool:
     """Whether a clustered design is sized by the family's test on cluster means."""
     return design.cluster is not None and family.cluster_means
@@ -266,7 +277,7 @@ def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> S
         enrolment_per_group=enrolled[0],
         enrolment_total=sum(enrolled),
         unit=family.unit,
-        method=family.method,
+        method=_method(family, design),
         reference=family.reference,
         events=events,
         notes=notes + tuple(family.notes(tested)) + tuple(_shared_notes(design)),

@@ -326,7 +326,7 @@ def _justification(report: SpecReport) -> str:
         sentences.append("The source of the standard deviation is not stated.")
     sentences += _further_assumptions(design)
     # with interim looks the power is the boundaries' and the fixed design's method is part of the sentence
-    method = sample.method if report.sequential is not None else family.method
+    method = sample.method if report.sequential is not None or design.cluster is not None else family.method
     if report.sequential is None and sample.verification is not None:  # the size is the simulated test's
         method = f"{sample.method}; the search started from {sample.start_method or family.method}"
     sentences.append(f"Method of calculation: {md.inline(method)} "
