@@ -270,7 +270,7 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | N
     unit = family.unit if family.unit != "per group" else "per group"
     if analysable >= family.min_n:
         report.at_planned = power_at(design, analysable)
-        if verify and sample.verification is not None:
+        if verify and sample.verification is not None and report.sequential is None:
             report.at_planned = _simulated_at(design, analysable, report.at_planned, sample.verification, root)
         if report.sequential is not None:
             from .power.sequential_size import apply_to_power
@@ -332,6 +332,8 @@ def _analysable_note(analysable: int, attrition: float) -> str:
 
 def _simulation(report: SpecReport, spec: Spec) -> None:
     """Run ``design.simulation`` at the planned analysable n and compare it with the exact power."""
+    from .power.verify import formula_method
+
     design = spec.design
     if design.simulation is None or report.at_planned is None:
         return
@@ -350,7 +352,7 @@ def _simulation(report: SpecReport, spec: Spec) -> None:
         f"simulated power at the planned {at.n_per_group} analysable {unit}: {sim.power:.3f} ± "
         f"{sim.standard_error:.3f} (SE; {sim.reps:,} simulated experiments, {sim.distribution} outcome, "
         f"seed {sim.seed}); " + (
-            f"the same simulation verified the size; the formula ({design.family.method}) gives {at.formula_power:.3f}"
+            f"the same simulation verified the size; the formula ({formula_method(design)}) gives {at.formula_power:.3f}"
             if at.verification is not None and at.formula_power is not None else
             f"{_power_label(report)} power {at.power:.3f}"), loc,
     )

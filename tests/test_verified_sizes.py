@@ -301,3 +301,10 @@ def test_check_warns_that_a_design_effect_size_is_an_unverified_approximation(tm
     assert report.sample.label == "design-effect approximation"
     finding = next(f for f in report.findings if f.kind == "approximate-size" and f.field == "design.cluster")
     assert finding.severity == "warning" and "not verified" in finding.message and "design effect 1.5" in finding.message
+
+
+def test_sequential_power_at_n_does_not_claim_simulation(run):
+    # With interim looks the power at n is the boundaries' (normal theory), not a simulation.
+    data = run("size", "log-rank", "--hr", "0.5", "--param", "event_probability=0.8", "--param", "sequential.looks=2",
+               "--n", "50", "--json").json()
+    assert data["verification"] is None and data["formula_power"] is None

@@ -496,8 +496,8 @@ def _power_at_n(design: DesignBase, n: int, quiet: bool) -> PowerAtN:
     from ..power import power_at
     from ..power.verify import needs_verification
 
-    if not needs_verification(design) or design.family.events_only(design):
-        return power_at(design, n)
+    if not needs_verification(design) or design.family.events_only(design) or design.sequential is not None:
+        return power_at(design, n)  # a sequential design's power is its boundaries' (normal theory)
     from ..power.cache import default_cache_dir
     from ..power.verify import verified_power_at
     from ..report import console

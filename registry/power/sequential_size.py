@@ -188,5 +188,6 @@ def _fixed_method(sample: SampleSize) -> str:
 
 
 def apply_to_power(at: PowerAtN, size: SequentialSize) -> PowerAtN:
-    """Power at the planned n of the sequential test instead of the fixed one."""
-    return replace(at, power=sequential_power(size, at.n_per_group))
+    """Power at the planned n of the sequential test instead of the fixed one (normal theory, never
+    simulated: a fixed design's simulation facts are dropped)."""
+    return replace(at, power=sequential_power(size, at.n_per_group), formula_power=None, verification=None)
