@@ -82,7 +82,11 @@ def formula_method(design: DesignBase) -> str:
     if design.cluster is not None:
         return ("approximation for unequal cluster sizes: the noncentral t on cluster means, df = k1 + k2 - 2, "
                 "each mean with the first-order variance icc + (1 - icc)(1 + cv^2) / m")
-    return design.family.method
+    family, plan = design.family, design.simulation
+    own = family.default_distribution(design.as_tested())
+    if plan is not None and plan.distribution is not None and plan.distribution != own:
+        return f"{family.method}, for {own} outcomes, not the spec's {plan.distribution} outcome"
+    return family.method
 
 
 def _settings(design: DesignBase, reps: int | None, seed: int | None) -> tuple[int, int, str | None]:
