@@ -233,9 +233,12 @@ def assurance_for_check(report: "SpecReport", spec: "Spec", spec_file: Any = Non
     report.add("assurance", "info", "design.assurance", text, loc)
 
 
-def size_extras(design: "DesignBase", result: Any, n: int | None) -> tuple[Any, list[tuple[str, str]], dict[str, Any]]:
+def size_extras(design: "DesignBase", result: Any, n: int | None, fixed: Any = None,
+                ) -> tuple[Any, list[tuple[str, str]], dict[str, Any]]:
     """For ``prespec size``: the result with the maximum n (or the sequential power at ``n``), the rows
-    to print for the looks and the assurance, and the JSON keys to add."""
+    to print for the looks and the assurance, and the JSON keys to add. ``fixed`` is the fixed
+    design's size when ``n`` is given (the simulation-verified one where the design has one, as in
+    ``check``); by default the solver's."""
     from .power import solve_sample_size
     from .power.assurance import design_assurance
     from .power.sequential_size import apply_to_power
@@ -244,7 +247,8 @@ def size_extras(design: "DesignBase", result: Any, n: int | None) -> tuple[Any, 
     extra: dict[str, Any] = {}
     where = "at the maximum n"
     if design.sequential is not None:
-        fixed = solve_sample_size(design) if n is not None else result
+        if fixed is None:
+            fixed = solve_sample_size(design) if n is not None else result
         size = size_sequential(design, fixed)
         plan = size.plan
         if n is None:

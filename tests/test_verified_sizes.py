@@ -328,3 +328,14 @@ def test_a_design_effect_size_with_few_clusters_falls_short_of_what_it_claims(tm
     control, treated = proportions(0.3), proportions(0.7)
     simulated = float(np.mean(stats.ttest_ind(treated, control, axis=1).pvalue < 0.05))
     assert simulated < result.achieved_power - 3 * math.sqrt(0.8 * 0.2 / REPS)
+
+
+def test_sequential_power_at_n_uses_the_verified_fixed_design_as_check_does(run, tmp_path, monkeypatch):
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path))
+    argv = ("size", "log-rank", "--hr", "0.5", "--param", "event_probability=0.8", "--param", "sequential.looks=2",
+            "--param", "simulation.reps=1000")
+    data = run(*argv, "--n", "50", "--json").json()
+    fixed = verified_sample_size(design_from_params("log-rank", hr=0.5, event_probability=0.8,
+                                                    sequential={"looks": 2}, simulation={"reps": 1000}))
+    assert data["sequential"]["fixed_n_per_group"] == fixed.n_per_group != sample_size(
+        "log-rank", hr=0.5, event_probability=0.8).n_per_group

@@ -407,7 +407,8 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
         from ..interim import size_extras
 
         try:
-            result, staged_rows, staged = size_extras(design, result, n)
+            fixed = _verified(design, workers, as_json) if n is not None and design.sequential is not None else None
+            result, staged_rows, staged = size_extras(design, result, n, fixed)
         except InfeasibleDesign as error:
             raise UsageError(f"the {test} design has no answer ({error.field}): {error.message}") from None
     sim = None
