@@ -212,7 +212,7 @@ class RepeatedMeasures(Family):
     symbol = "f"
     unit = "subjects per group"
     groups = 1
-    exact = False  # exact under compound symmetry and for between, change and contrast terms; not for ar1 F tests
+    exact = False  # per design: see label()
     effect_model = RepeatedProfile
     example = {"means": [[20.0, 22.0, 23.0, 23.0]], "sd": 5.0, "correlation": 0.6}
     effect_words = {"means": "mean profiles of", "correlation": "a correlation between repeated measurements of",
@@ -227,6 +227,26 @@ class RepeatedMeasures(Family):
 
     def symbol_for(self, design: DesignBase) -> str:
         return "d" if design.effect.chosen_term in ("change", "contrast") else "f"
+
+    def sides(self, design: DesignBase) -> str:
+        """The F tests (within, between, interaction) have no sides; change and contrast are t-tests."""
+        if design.effect.chosen_term in ("within", "between", "interaction"):
+            return "F test, no sides"
+        return super().sides(design)
+
+    def label(self, design: DesignBase) -> str:
+        """Exact where the statistic's distribution is (the class docstring says which terms); the
+        Greenhouse-Geisser test and the test without sphericity are approximations, named as such."""
+        if design.cluster is not None:
+            return super().label(design)
+        effect = design.effect
+        if effect.chosen_term in ("between", "change", "contrast"):
+            return "exact"
+        if effect.structure == "compound-symmetry":
+            if effect.sphericity == "none":
+                return "exact"
+            return "approximation: Greenhouse-Geisser critical value at the expected estimated epsilon"
+        return "two-moment approximation (no sphericity)"
 
     # ------------------------------------------------------------ the term's pieces
 
