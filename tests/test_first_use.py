@@ -263,6 +263,22 @@ def test_include_and_exclude_globs_choose_the_spec_files(tmp_path, run):
     assert result.status == 1 and "exclude" in result.err and "relative to the registry folder" in result.err
 
 
+def test_commands_that_take_an_id_read_the_files_check_reads(tmp_path, run):
+    from .conftest import EXAMPLES
+
+    text = (EXAMPLES / "fibre-butyrate.yaml").read_text()
+    (tmp_path / "drafts").mkdir()
+    (tmp_path / "fibre-butyrate.yaml").write_text(text)
+    (tmp_path / "drafts" / "copy.yaml").write_text(text)  # an old draft with the same id, left out by exclude
+    (tmp_path / ".prespec.yaml").write_text("exclude: ['drafts/']\n")
+    assert run("check", tmp_path, "--no-history").status == 0
+    hashed = run("hash", "fibre-butyrate", tmp_path, "--json")
+    assert hashed.status == 0 and hashed.json()["path"].endswith("fibre-butyrate.yaml"), hashed.err
+    (tmp_path / "fibre-butyrate.yaml").unlink()
+    missing = run("hash", "fibre-butyrate", tmp_path)
+    assert missing.status == 2 and "leave out 1 YAML file" in missing.err and "copy.yaml" in missing.err
+
+
 # ---------------------------------------------------------------- terminal output
 
 def test_no_line_ends_in_padding(run):
