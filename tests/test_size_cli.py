@@ -223,3 +223,10 @@ def test_f_tests_are_not_called_two_sided(run, family):
     out = run("size", family, *[arg for p in params for arg in ("--param", p)]).out
     (line,) = [line for line in out.splitlines() if line.strip().startswith("assumptions")]
     assert "no sides" in line and "two-sided" not in line
+
+
+def test_values_near_the_edges_are_printed_as_given(run):
+    # a rounded echo ("alpha (1)", "target power 1") would contradict the rule it explains
+    result = run("size", "two-sample-t", "--d", "0.5", "--alpha", "0.9999999")
+    assert result.status == 2 and "alpha (0.9999999)" in result.err
+    assert "target power 0.999999999," in run("size", "two-sample-t", "--d", "0.5", "--power", "0.999999999").out

@@ -577,7 +577,7 @@ def _fmt(value: Any) -> str:
 
 
 def _assumptions(design: DesignBase, groups: int) -> str:
-    parts = [f"alpha {design.alpha:g}", design.family.sides(design), f"target power {design.power:g}"]
+    parts = [f"alpha {design.alpha:.10g}", design.family.sides(design), f"target power {design.power:.10g}"]
     if groups == 2:
         parts.append(f"allocation n2/n1 = {design.allocation_ratio:g}")
     for name in sorted(design.model_fields_set - _DESIGN_LABELS):

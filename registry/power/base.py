@@ -235,7 +235,7 @@ class DesignBase(BaseModel):
     def _power_above_alpha(self) -> "DesignBase":
         if self.power <= self.alpha:
             raise ValueError(
-                f"power ({self.power:g}) must be greater than alpha ({self.alpha:g}); "
+                f"power ({self.power!r}) must be greater than alpha ({self.alpha!r}); "
                 "a test has power alpha even when there is no effect"
             )
         family = type(self).family_instance
