@@ -431,6 +431,18 @@ class Family(ABC):
         """Family-specific caveats carried into the results."""
         return ()
 
+    def enumeration_cost(self, design: DesignBase, n: float) -> float:
+        """Families whose exact power enumerates tables: about how many one power at ``n`` decides
+        (0 for families whose power costs next to nothing)."""
+        return 0.0
+
+    def exact_at(self, design: DesignBase, n: float) -> bool:
+        """Whether :meth:`power` at ``n`` is the exact computation (False where a family hands over to
+        its normal approximation because the enumeration would be too large)."""
+        from .binary_tables import EXACT_CELLS
+
+        return self.enumeration_cost(design, n) <= EXACT_CELLS
+
     def formula(self, design: DesignBase) -> str | None:
         """The published approximate formula the search starts from, when the reported n is not the
         formula's own (exact enumeration or simulation); None when :meth:`power` is the method itself."""
