@@ -15,8 +15,8 @@ from datetime import date, datetime, timezone
 from pathlib import Path
 from typing import Any
 
-from .checks import Finding, SpecReport, check_files
-from .config import RegistryConfig
+from .checks import Finding, SpecReport, check_files, check_registry
+from .config import RegistryConfig, config_loader
 from .discovery import SpecFile, UsageError, discover, display_name
 from .hints import id_hint
 from .git import Commit, GitProblem, Repository, TagInfo, find_repository
@@ -347,18 +347,25 @@ def _deleted_reports(registry: RegistryHistory, seen: set[str], scopes: Sequence
 
 def find_spec(target: str, paths: Sequence[str] = (".",),
               config_for: Callable[[SpecFile], RegistryConfig] | None = None) -> tuple[SpecFile, SpecReport]:
-    """The spec named by a file path or by its id (searched under ``paths``), checked."""
+    """The spec named by a file path or by its id (searched under ``paths``), checked with its
+    registry's settings; an id is looked up only among the files the registry's ``include`` and
+    ``exclude`` select, as ``check`` reads them."""
+    config_for = config_for or config_loader([])
     candidate = Path(target)
     if candidate.is_file():
         files = discover([target])
         report = check_files(files, config_for)[0]
         return files[0], report
-    files = discover(list(paths))
-    reports = check_files(files, config_for)
+    found = discover(list(paths))
+    files, reports, _ = check_registry(found, config_for)
     matches = [(f, r) for f, r in zip(files, reports) if r.id == target]
     if not matches:
-        where = ", ".join(paths)
+        where = ", ".join(display_name(p) for p in paths)
         hint = id_hint(target, [r.id for r in reports if r.id])
+        left_out = [f.display for f in found if not f.named and not f.refusal and not config_for(f).selects(f.path)]
+        if left_out:
+            hint += (f"; the include/exclude of .prespec.yaml leave out {len(left_out)} YAML file"
+                     f"{'s' if len(left_out) != 1 else ''} ({', '.join(left_out[:3])}{', ...' if len(left_out) > 3 else ''})")
         raise UsageError(f"no spec with id {target!r} under {where}{hint} (give the id of a spec, or a spec file)")
     if len(matches) > 1:
         raise UsageError(f"id {target!r} is used by {', '.join(r.path for _, r in matches)}; ids must be unique")

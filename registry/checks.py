@@ -248,7 +248,7 @@ def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | N
             return
     sample = report.sample
     family = design.family
-    if not verify:
+    if not verify or (sample.verification is None and design.sequential is None):  # not simulated
         for doubt in family.doubts(design):
             report.add("approximate-size", "warning", "design.test", doubt, ("design", "test"))
     if design.cluster is not None and not family.cluster_means:

@@ -7,7 +7,6 @@ and, for an unknown key, suggests the nearest allowed one. Positions come from t
 
 from __future__ import annotations
 
-import difflib
 import math
 import re
 import types
@@ -20,6 +19,7 @@ from .model import Spec
 from .power.catalog import UnknownFamily, family_names
 from .power.synonyms import ALTERNATIVE_SYNONYMS
 from .power.synonyms import hint as synonym_hint
+from .power.synonyms import parameter_hint
 from .problems import NO_VALUE, InvalidSpec, Problem
 from .yamlio import Document
 
@@ -191,8 +191,7 @@ def _message(error: dict[str, Any], loc: tuple[Any, ...], model: type[BaseModel]
         return f"{name} is required but missing; add '{name}: ...'"
     if kind == "extra_forbidden":
         allowed = allowed_keys(model, loc[:-1], data)
-        close = difflib.get_close_matches(str(loc[-1]), allowed, n=1, cutoff=0.6)
-        hint = f"; did you mean {close[0]!r}?" if close else "."
+        hint = parameter_hint(loc[-1], allowed)
         listing = f" Allowed here: {', '.join(allowed)}." if allowed else ""
         return f"unknown key {_short(loc[-1])}{hint}{listing}"
     if kind == "union_tag_invalid":

@@ -127,3 +127,59 @@ def test_power_at_n_and_detectable_effect_for_fisher():
     at = power("fisher-exact", 30, p1=0.2, p2=0.6)
     assert at.power == pytest.approx(_scipy_power("fisher", 30, 30, 0.2, 0.6, 0.05, "two-sided"), rel=1e-9)
     assert at.minimum_detectable_natural["p2"] > 0.2
+
+
+# ------------------------------------------------------------------ sizes too large to enumerate
+
+
+def _hand_over_n(test, p):
+    from registry.power.binary_tables import EXACT_CELLS, enumeration_cells
+
+    n = 10
+    while enumeration_cells(test, n + 1, n + 1, p, p) <= EXACT_CELLS:
+        n = max(n + 1, int(n * 1.02))
+    return n
+
+
+@pytest.mark.parametrize("family, test, extra, p1", [
+    ("fisher-exact", "fisher", {}, 0.5),
+    ("fisher-exact", "fisher", {}, 0.1),
+    ("two-proportions", "pooled", {}, 0.5),
+    ("two-proportions", "corrected", {"continuity_correction": True}, 0.1),
+])
+def test_the_approximation_agrees_with_enumeration_where_it_takes_over(family, test, extra, p1):
+    # the note's claim: within about 0.003 near 80% power at the hand-over size (the exact sums are
+    # checked against scipy.stats.fisher_exact and chi2_contingency above)
+    from scipy.optimize import brentq
+
+    from registry.power.catalog import get_family
+
+    n = _hand_over_n(test, p1)
+    fam = get_family(family)
+    approx = lambda p2: float(fam.power(design_from_params(family, p1=p1, p2=p2, **extra), np.array([n + 40]))[0])
+    p2 = brentq(lambda q: approx(q) - 0.8, p1 + 1e-6, min(0.999, p1 + 0.5))
+    design = design_from_params(family, p1=p1, p2=p2, **extra)
+    assert not fam.exact_at(design, n + 40)
+    assert abs(approx(p2) - exact_power(test, n + 40, n + 40, p1, p2, 0.05, "two-sided")) <= 0.003
+
+
+@pytest.mark.parametrize("family, params, large_n", [
+    ("fisher-exact", dict(p1=0.5, p2=0.52), 20_000),
+    ("two-proportions", dict(p1=0.5, p2=0.51), 60_000),
+])
+def test_very_large_binary_designs_are_sized_by_the_approximation_and_say_so(family, params, large_n):
+    # formerly a scan over every n took many minutes
+    result = sample_size(family, **params)
+    assert result.n_per_group > 5000 and result.label == "normal approximation"
+    assert any("enumerating every table would take too long" in note for note in result.notes)
+    at = power(family, large_n, **params)
+    assert any("enumerating every table would take too long" in note for note in at.notes)
+
+
+def test_large_exact_designs_scan_a_window_around_the_crossing():
+    result = sample_size("two-proportions", p1=0.3, p2=0.34)
+    n = result.n_per_group
+    assert result.label == "exact" and any("around the crossing found by bisection" in x for x in result.notes)
+    # the answer reaches the target and n - 1 does not, by direct enumeration
+    assert exact_power("pooled", n, n, 0.3, 0.34, 0.05, "two-sided") >= 0.8
+    assert exact_power("pooled", n - 1, n - 1, 0.3, 0.34, 0.05, "two-sided") < 0.8

@@ -90,3 +90,37 @@ def test_size_confirmed_by_simulated_analysis(kw, tolerance):
 def test_bad_repeated_inputs(kw, message):
     with pytest.raises(InvalidDesign, match=message.replace("[", r"\[").replace(")", r"\)")):
         design_from_params("repeated-measures", **kw)
+
+
+def test_more_measurements_than_subjects():
+    # 40 measurements, a handful of subjects: the contrasts' covariance estimate is singular (df < 39),
+    # so the expected Greenhouse-Geisser epsilon cannot come from the Bartlett decomposition; the size
+    # (formerly skipped to n = 40, and power at n = 10 crashed) is confirmed by simulating the test
+    kw = dict(means=[[float(i % 5) for i in range(40)]], sd=3.0, correlation=0.5)
+    design = design_from_params("repeated-measures", **kw)
+    result = sample_size("repeated-measures", **kw)
+    assert result.n_per_group < 10
+    for n in (result.n_per_group - 1, result.n_per_group):
+        sim = simulated_power(design, n, reps=3000, seed=4)
+        assert sim.power == pytest.approx(power("repeated-measures", n, **kw).power, abs=4 * sim.standard_error)
+    assert power("repeated-measures", result.n_per_group - 1, **kw).power < 0.8 <= result.achieved_power
+    assert math.isfinite(power("repeated-measures", 10, **kw).power)
+
+
+def test_many_measurements_stay_quick():
+    # with many contrasts the expected epsilon uses fewer fixed draws (each costs k^3); its value stays
+    # within Monte Carlo error of an independent estimate from scipy's Wishart sampler
+    from scipy import stats
+
+    from registry.power.repeated_measures import contrast_basis, expected_epsilon
+
+    m, rho = 60, 0.5
+    idx = np.arange(m)
+    c = contrast_basis(m)
+    a = c @ (4 * rho ** np.abs(idx[:, None] - idx[None, :])) @ c.T
+    df = 80
+    w = stats.wishart(df=df, scale=a).rvs(size=400, random_state=1) / df
+    tr, tr2 = np.trace(w, axis1=1, axis2=2), np.einsum("rij,rji->r", w, w)
+    independent = tr**2 / ((m - 1) * tr2)
+    se = independent.std() / np.sqrt(len(independent))
+    assert expected_epsilon(a, df) == pytest.approx(independent.mean(), abs=5 * se + 1e-3)

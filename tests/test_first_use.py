@@ -144,6 +144,21 @@ def test_family_hints_prefer_known_synonyms(run, given, meant):
     assert result.status == 2 and f"did you mean '{meant}'?" in result.err
 
 
+@pytest.mark.parametrize("family", ["noninferiority-t", "equivalence-t"])
+def test_a_standardised_effect_on_a_raw_unit_design_points_to_difference_and_sd(tmp_path, run, family):
+    # common practice: Cohen's d is a difference divided by an SD; 'sd' (the closest spelling of 'd')
+    # would point the wrong way
+    result = run("size", family, "--param", "d=0.3")
+    assert result.status == 2 and "did you mean 'sd'" not in result.err
+    assert "give difference and sd" in result.err
+    spec = _write(tmp_path, "margin-trial.yaml", CLUSTER.format(planned=50).replace("two-sample-t", family)
+                  .replace("classroom-recall", "margin-trial").replace("  cluster:\n    size: 10\n    icc: 0.05\n", "")
+                  .replace("    d: 0.5\n", "    d: 0.5\n    margin: 0.2\n"))
+    checked = run("check", "--json", "--no-history", spec).json()
+    messages = [f["message"] for s in checked["specs"] for f in s["findings"] if f["field"] == "design.effect.d"]
+    assert messages and all("give difference and sd" in m and "did you mean" not in m for m in messages), messages
+
+
 def test_sides_hint_names_the_one_sided_choices(tmp_path, run):
     assert run("new", "one-tail", tmp_path).status == 0
     spec = tmp_path / "one-tail.yaml"
@@ -246,6 +261,22 @@ def test_include_and_exclude_globs_choose_the_spec_files(tmp_path, run):
     (tmp_path / ".prespec.yaml").write_text("exclude: ['/etc/x.yaml']\n")
     result = run("check", tmp_path, "--no-history")
     assert result.status == 1 and "exclude" in result.err and "relative to the registry folder" in result.err
+
+
+def test_commands_that_take_an_id_read_the_files_check_reads(tmp_path, run):
+    from .conftest import EXAMPLES
+
+    text = (EXAMPLES / "fibre-butyrate.yaml").read_text()
+    (tmp_path / "drafts").mkdir()
+    (tmp_path / "fibre-butyrate.yaml").write_text(text)
+    (tmp_path / "drafts" / "copy.yaml").write_text(text)  # an old draft with the same id, left out by exclude
+    (tmp_path / ".prespec.yaml").write_text("exclude: ['drafts/']\n")
+    assert run("check", tmp_path, "--no-history").status == 0
+    hashed = run("hash", "fibre-butyrate", tmp_path, "--json")
+    assert hashed.status == 0 and hashed.json()["path"].endswith("fibre-butyrate.yaml"), hashed.err
+    (tmp_path / "fibre-butyrate.yaml").unlink()
+    missing = run("hash", "fibre-butyrate", tmp_path)
+    assert missing.status == 2 and "leave out 1 YAML file" in missing.err and "copy.yaml" in missing.err
 
 
 # ---------------------------------------------------------------- terminal output

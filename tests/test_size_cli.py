@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import math
 
 import pytest
@@ -150,3 +151,83 @@ def test_bad_requests_exit_2_with_a_message(run, argv, message):
     assert result.status == 2
     assert message in result.err
     assert "Traceback" not in result.err and result.out == ""
+
+
+# ------------------------------------------------------------------ structured fields and labels
+
+
+def _rm(run, *extra):
+    return run("size", "repeated-measures", "--means", "20,22,23,23", "--sd", "5", "--correlation", "0.6",
+               *extra, "--json").json()
+
+
+def test_repeated_measures_labels_follow_the_test(run):
+    from scipy import stats
+
+    # compound symmetry, uncorrected F: the statistic is exactly noncentral F with
+    # lambda = n sum_j (mu_j - mubar)^2 / (sd^2 (1 - rho)) (Winer, Statistical Principles in
+    # Experimental Design, 1971; common practice), df (m - 1, (n - 1)(m - 1))
+    exact = _rm(run, "--sphericity", "none")
+    n = exact["n_per_group"]
+    lam = lambda k: k * 6.0 / (25 * 0.4)  # deviations -2, 0, 1, 1 from the mean 22
+    power = lambda k: stats.ncf.sf(stats.f.isf(0.05, 3, 3 * (k - 1)), 3, 3 * (k - 1), lam(k))
+    assert exact["label"] == "exact"
+    assert exact["achieved_power"] == pytest.approx(power(n), rel=1e-9) and power(n) >= 0.8 > power(n - 1)
+    # the Greenhouse-Geisser test and ar1 without sphericity are approximations and say so
+    assert _rm(run)["label"].startswith("approximation: Greenhouse-Geisser")
+    assert "approximation" in _rm(run, "--structure", "ar1")["label"]
+    # the change score's t-test is exact whatever the structure
+    assert _rm(run, "--structure", "ar1", "--term", "change")["label"] == "exact"
+
+
+def test_text_choices_are_not_read_as_numbers(run):
+    # 'interaction' holds the letters 'int': the option must still take the term's words
+    payload = run("size", "repeated-measures", "--means", "20,22,23,23;18,20,21,22", "--sd", "5",
+                  "--correlation", "0.6", "--term", "between", "--json").json()
+    assert payload["label"] == "exact" and payload["n_total"] == 2 * payload["n_per_group"]
+
+
+@pytest.mark.parametrize("argv", [
+    ("factorial-anova", "--factors", '[{"name": "diet", "levels": 2}, {"name": "strain", "levels": 3}]',
+     "--primary", "diet", "--param", 'f={"diet": 0.25}'),
+    ("factorial-anova", "--param", 'factors=[{"name": "diet", "levels": 2}, {"name": "strain", "levels": 3}]',
+     "--primary", "diet", "--param", 'f={"diet": 0.25}'),
+])
+def test_nested_fields_from_the_command_line(run, argv):
+    from scipy import stats
+
+    payload = run("size", *argv, "--json").json()
+    # Cohen (1988) section 8.3: lambda = f^2 N for the F test of a main effect with df (1, N - cells),
+    # evaluated here with scipy's noncentral F
+    n = payload["n_per_group"]
+    power = lambda k: stats.ncf.sf(stats.f.isf(0.05, 1, 6 * k - 6), 1, 6 * k - 6, 0.0625 * 6 * k)
+    assert power(n) >= 0.8 > power(n - 1) and payload["n_total"] == 6 * n
+    human = run("size", *argv).out
+    assert "diet (2 levels) x strain (3 levels)" in human and "F test, no sides" in human
+
+
+def test_json_values_that_are_not_json_get_a_clear_message(run):
+    result = run("size", "factorial-anova", "--factors", '[{"name": "diet"')
+    assert result.status == 2 and "is read as JSON" in result.err and "Traceback" not in result.err
+    result = run("size", "factorial-anova", "--param", "factors={oops}")
+    assert result.status == 2 and "factors: a value starting with '{'" in result.err
+
+
+@pytest.mark.parametrize("family", ["one-way-anova", "factorial-anova", "mixed-design", "repeated-measures"])
+def test_f_tests_are_not_called_two_sided(run, family):
+    from registry.power import family_names
+    from registry.power.catalog import get_family as lookup
+
+    assert family in family_names()
+    example = lookup(family).example
+    params = [f"{k}={json.dumps(v) if isinstance(v, (list, dict)) else v}" for k, v in example.items()]
+    out = run("size", family, *[arg for p in params for arg in ("--param", p)]).out
+    (line,) = [line for line in out.splitlines() if line.strip().startswith("assumptions")]
+    assert "no sides" in line and "two-sided" not in line
+
+
+def test_values_near_the_edges_are_printed_as_given(run):
+    # a rounded echo ("alpha (1)", "target power 1") would contradict the rule it explains
+    result = run("size", "two-sample-t", "--d", "0.5", "--alpha", "0.9999999")
+    assert result.status == 2 and "alpha (0.9999999)" in result.err
+    assert "target power 0.999999999," in run("size", "two-sample-t", "--d", "0.5", "--power", "0.999999999").out

@@ -339,3 +339,44 @@ def test_sequential_power_at_n_uses_the_verified_fixed_design_as_check_does(run,
                                                     sequential={"looks": 2}, simulation={"reps": 1000}))
     assert data["sequential"]["fixed_n_per_group"] == fixed.n_per_group != sample_size(
         "log-rank", hr=0.5, event_probability=0.8).n_per_group
+
+
+def test_designs_too_large_to_simulate_keep_the_formula_and_say_so(tmp_path):
+    # hr 0.95 needs about 12,000 events (Schoenfeld 1983, common practice); simulating 20,000 trials of
+    # that size per candidate n would hold check for minutes, and at this size the formula's error is small
+    from registry.power.verify import SIMULATION_BUDGET
+
+    formula = sample_size("log-rank", hr=0.95, event_probability=0.5)
+    assert formula.n_total * 20_000 > SIMULATION_BUDGET
+    result = verified_sample_size(design_from_params("log-rank", hr=0.95, event_probability=0.5))
+    assert result.n_per_group == formula.n_per_group and result.label == "normal approximation"
+    assert result.verification is None and result.notes[0].startswith("not verified by simulation")
+    text = textwrap.dedent("""\
+        id: small-hazard
+        title: A small hazard ratio
+        status: draft
+        data_collection:
+          start: 2028-01-01
+        design:
+          test: log-rank
+          effect:
+            hr: 0.95
+            event_probability: 0.5
+        sample_size:
+          per_group: 12000
+        """)
+    path = tmp_path / "small-hazard.yaml"
+    path.write_text(text, encoding="utf-8")
+    report = check_file(SpecFile(path=path, display="small-hazard.yaml", root=tmp_path))
+    notes = [f.message for f in report.findings if f.kind == "method-note"]
+    assert report.sample.n_per_group == formula.n_per_group and report.verdict == "ok"
+    assert any(note.startswith("not verified by simulation") for note in notes), notes
+
+
+def test_power_at_a_size_too_large_to_simulate_is_the_formulas():
+    from registry.power.verify import verified_power_at
+
+    design = design_from_params("log-rank", hr=0.95, event_probability=0.5)
+    at = verified_power_at(design, 12_000)
+    assert at.verification is None and at.notes[0].startswith("not simulated")
+    assert at.power == pytest.approx(power("log-rank", 12_000, hr=0.95, event_probability=0.5).power, rel=1e-12)

@@ -12,6 +12,8 @@ import json
 import math
 import re
 import sys
+import types
+import typing
 from typing import TYPE_CHECKING, Any, Callable
 
 from ..discovery import UsageError
@@ -105,10 +107,16 @@ def _scalar(text: str) -> Any:
 
 
 def parse_param(text: str) -> tuple[str, Any]:
-    """``NAME=VALUE`` to ``(name, value)``: numbers, true/false, comma lists (``1,2,3``) or text.
+    """``NAME=VALUE`` to ``(name, value)``: numbers, true/false, comma lists (``1,2,3``), rows of a
+    table separated by ``;`` (``20,22;18,21``), JSON for structured values (``[{"name": "diet",
+    "levels": 2}]``) or text.
 
     >>> parse_param("sd1=4.5"), parse_param("means=10,12,15"), parse_param("method=score")
     (('sd1', 4.5), ('means', [10, 12, 15]), ('method', 'score'))
+    >>> parse_param("means=20,22;18,21.5")
+    ('means', [[20, 22], [18, 21.5]])
+    >>> parse_param('factors=[{"name": "diet", "levels": 2}]')
+    ('factors', [{'name': 'diet', 'levels': 2}])
     """
     name, sep, raw = text.partition("=")
     name = name.strip()
@@ -116,20 +124,46 @@ def parse_param(text: str) -> tuple[str, Any]:
         raise argparse.ArgumentTypeError(f"expected NAME=VALUE (e.g. sd1=4.5); got {text!r}")
     if not raw.strip():
         raise argparse.ArgumentTypeError(f"{name} has no value; expected NAME=VALUE, e.g. {name}=1.5")
+    if raw.lstrip()[:1] in ("[", "{"):
+        return name, _structured(name, raw)
+    if ";" in raw:
+        return name, [[_scalar(part) for part in row.split(",")] for row in raw.split(";")]
     if "," in raw:
         return name, [_scalar(part) for part in raw.split(",")]
     return name, _scalar(raw)
 
 
+def _structured(name: str | None, raw: str) -> Any:
+    """A JSON list or object given on the command line (nested fields such as factorial factors);
+    ``name`` is the --param name (None for an option, which argparse names itself)."""
+    prefix, example = (f"{name}: ", f"{name}=") if name else ("", "")
+    try:
+        value = json.loads(raw)
+    except ValueError as error:
+        raise argparse.ArgumentTypeError(
+            f"{prefix}a value starting with {raw.lstrip()[0]!r} is read as JSON, which this is not ({error.msg} at "
+            f"character {error.pos + 1}); e.g. {example}'[{{\"name\": \"diet\", \"levels\": 2}}]'") from None
+    if not isinstance(value, (list, dict)):
+        raise argparse.ArgumentTypeError(f"{prefix}expected a JSON list or object; got {raw!r}")
+    return value
+
+
 def _kind_of(annotation: Any) -> str:
-    text = str(annotation)
-    if "list[" in text:
+    """How a command-line value for a field of type ``annotation`` is read: list, bool, whole, number or
+    text (Literal choices and anything else), from the type itself, not its printed name."""
+    origin = typing.get_origin(annotation)
+    if origin in (typing.Union, types.UnionType):
+        kinds = {_kind_of(arg) for arg in typing.get_args(annotation) if arg is not type(None)}
+        return kinds.pop() if len(kinds) == 1 else "text"
+    if origin is list:
         return "list"
-    if text.startswith("<class 'bool'>"):
+    if origin is dict:
+        return "structured"
+    if annotation is bool:
         return "bool"
-    if "int" in text.replace("Literal", "") and "float" not in text:
+    if annotation is int:
         return "whole"
-    if "float" in text:
+    if annotation is float:
         return "number"
     return "text"
 
@@ -146,7 +180,10 @@ def _spec_field_options() -> list[tuple[str, str, str, str]]:
     fields: dict[str, tuple[str, str, list[str]]] = {}
     for family in FAMILIES:
         for name, info in family.effect_model.model_fields.items():
-            entry = fields.setdefault(name, (_kind_of(info.annotation), info.description or "", []))
+            kind = _kind_of(info.annotation)
+            entry = fields.setdefault(name, (kind, info.description or "", []))
+            if entry[0] != kind:  # the same name typed differently by two families: read it as --param does
+                entry = fields[name] = ("value", entry[1], entry[2])
             entry[2].append(family.name)
     for name in ("allocation_ratio", "attrition"):
         info = DesignBase.model_fields[name]
@@ -180,12 +217,20 @@ def _bool(text: str) -> bool:
 
 
 def _list(text: str) -> Any:
-    return parse_param(f"x={text}")[1]
+    """An option's value read as --param reads it (lists, rows, JSON), with argparse naming the option."""
+    if text.lstrip()[:1] in ("[", "{"):
+        return _structured(None, text)
+    return parse_param(f"value={text}")[1]
+
+
+def _structured_option(text: str) -> Any:
+    return _structured(None, text)
 
 
 _PARSERS: dict[str, Callable[[str], Any]] = {"number": _number, "whole": _whole, "bool": _bool, "list": _list,
-                                              "text": str}
-_METAVARS = {"number": "X", "whole": "N", "bool": "yes|no", "list": "X,Y,...", "text": "NAME"}
+                                              "structured": _structured_option, "value": _list, "text": str}
+_METAVARS = {"number": "X", "whole": "N", "bool": "yes|no", "list": "X,Y,...", "structured": "JSON", "value": "VALUE",
+             "text": "NAME"}
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -541,7 +586,9 @@ def _effect_line(design: DesignBase, result: SampleSize | PowerAtN) -> str:
     given = {k: v for k, v in design.effect.model_dump(exclude_none=True).items() if k != result.symbol}
     text = f"{result.symbol} = {_g(result.effect_size)}"
     if given:
-        text += " (from " + ", ".join(f"{k} {_fmt(v)}" for k, v in given.items()) + ")"
+        # structured fields (factors, profiles of means) in the family's own words, as the summary shows them
+        shown = {k: design.family.effect_text(k, getattr(design.effect, k, v)) or _fmt(v) for k, v in given.items()}
+        text += " (from " + ", ".join(f"{k} {v}" for k, v in shown.items()) + ")"
     return text
 
 
@@ -560,7 +607,7 @@ def _fmt(value: Any) -> str:
 
 
 def _assumptions(design: DesignBase, groups: int) -> str:
-    parts = [f"alpha {design.alpha:g}", design.family.sides(design), f"target power {design.power:g}"]
+    parts = [f"alpha {design.alpha:.10g}", design.family.sides(design), f"target power {design.power:.10g}"]
     if groups == 2:
         parts.append(f"allocation n2/n1 = {design.allocation_ratio:g}")
     for name in sorted(design.model_fields_set - _DESIGN_LABELS):

@@ -7,7 +7,6 @@ SampleSize(test='two-sample-t', n_per_group=26, n_total=52, achieved_power=0.807
 
 from __future__ import annotations
 
-import difflib
 from typing import Any
 
 from pydantic import ValidationError
@@ -88,9 +87,9 @@ def design_from_params(test: str, **params: Any) -> DesignBase:
 
 
 def _unknown_parameter(key: str, allowed: list[str]) -> str:
-    close = difflib.get_close_matches(key, allowed, n=1)
-    hint = f"; did you mean {close[0]!r}?" if close else "."
-    return f"unknown parameter {key!r} for this design{hint} Allowed: {', '.join(allowed)}"
+    from .synonyms import parameter_hint
+
+    return f"unknown parameter {key!r} for this design{parameter_hint(key, allowed)} Allowed: {', '.join(allowed)}"
 
 
 def sample_size(test: str, **params: Any) -> SampleSize:

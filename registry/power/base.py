@@ -235,7 +235,7 @@ class DesignBase(BaseModel):
     def _power_above_alpha(self) -> "DesignBase":
         if self.power <= self.alpha:
             raise ValueError(
-                f"power ({self.power:g}) must be greater than alpha ({self.alpha:g}); "
+                f"power ({self.power!r}) must be greater than alpha ({self.alpha!r}); "
                 "a test has power alpha even when there is no effect"
             )
         family = type(self).family_instance
@@ -430,6 +430,18 @@ class Family(ABC):
     def notes(self, design: DesignBase) -> tuple[str, ...]:
         """Family-specific caveats carried into the results."""
         return ()
+
+    def enumeration_cost(self, design: DesignBase, n: float) -> float:
+        """Families whose exact power enumerates tables: about how many one power at ``n`` decides
+        (0 for families whose power costs next to nothing)."""
+        return 0.0
+
+    def exact_at(self, design: DesignBase, n: float) -> bool:
+        """Whether :meth:`power` at ``n`` is the exact computation (False where a family hands over to
+        its normal approximation because the enumeration would be too large)."""
+        from .binary_tables import EXACT_CELLS
+
+        return self.enumeration_cost(design, n) <= EXACT_CELLS
 
     def formula(self, design: DesignBase) -> str | None:
         """The published approximate formula the search starts from, when the reported n is not the

@@ -158,6 +158,7 @@ class FactorialAnova(Family):
         "(sections 8.3 and 8.4). Hillsdale, NJ: Lawrence Erlbaum."
     )
     symbol = "f"
+    undirected = "F"
     unit = "units per cell"
     groups = 2  # the cells; group_sizes gives them all
     effect_model = FactorialEffect

@@ -160,6 +160,7 @@ class MixedDesign(Family):
         "Concepts, Methods and Applications, chapter 16. Boca Raton: CRC Press."
     )
     symbol = "f"
+    undirected = "F"
     unit = "blocks or clusters per treatment"
     groups = 1
     effect_model = MixedLayout

@@ -29,12 +29,27 @@ def contrast_basis(m: int) -> np.ndarray:
 
 
 _DRAWS = 4000  # fixed draws for the expected Greenhouse-Geisser epsilon (common random numbers for every n)
+_FLOPS = 1e8  # with many measurements, fewer draws: the estimate concentrates and each draw costs k^3
+
+
+def _draw_count(k: int) -> int:
+    """Draws for ``k`` contrasts: 4,000 up to k = 29, then fewer so one evaluation stays near 1e8
+    operations (at least 100; the estimate's spread shrinks as k and the df grow)."""
+    return int(min(_DRAWS, max(100, _FLOPS // k**3)))
+
+
+@lru_cache(maxsize=8)
+def _normal_draws(k: int) -> np.ndarray:
+    """Fixed standard normal columns for df < k; the first df columns serve every such df (common
+    random numbers)."""
+    return np.random.default_rng(20280102).normal(size=(_draw_count(k), k, k))
 
 
 @lru_cache(maxsize=8)
 def _bartlett_draws(k: int) -> tuple[np.ndarray, np.ndarray]:
     rng = np.random.default_rng(20280101)
-    return rng.random((_DRAWS, k)), np.tril(rng.normal(size=(_DRAWS, k, k)), -1)
+    draws = _draw_count(k)
+    return rng.random((draws, k)), np.tril(rng.normal(size=(draws, k, k)), -1)
 
 
 def expected_epsilon(a: np.ndarray, df: float) -> float:
@@ -45,11 +60,15 @@ def expected_epsilon(a: np.ndarray, df: float) -> float:
     k = a.shape[0]
     if k == 1:
         return 1.0
-    uniforms, lower = _bartlett_draws(k)
-    chi = np.sqrt(special.chdtri(df - np.arange(k)[None, :], 1 - uniforms))
-    b = lower + np.einsum("ri,ij->rij", chi, np.eye(k))
     root = np.linalg.cholesky(a)
-    s = root @ b @ np.swapaxes(b, 1, 2) @ root.T / df
+    if df < k:  # fewer degrees of freedom than contrasts: S is singular, drawn from its df normal columns
+        columns = _normal_draws(k)[:, :, : max(1, int(df))]
+        s = root @ columns @ np.swapaxes(columns, 1, 2) @ root.T / df
+    else:
+        uniforms, lower = _bartlett_draws(k)
+        chi = np.sqrt(special.chdtri(df - np.arange(k)[None, :], 1 - uniforms))
+        b = lower + np.einsum("ri,ij->rij", chi, np.eye(k))
+        s = root @ b @ np.swapaxes(b, 1, 2) @ root.T / df
     tr = np.trace(s, axis1=1, axis2=2)
     tr2 = np.einsum("rij,rji->r", s, s)
     return float(np.mean(np.clip(tr**2 / (k * tr2), 1 / k, 1.0)))
@@ -212,7 +231,7 @@ class RepeatedMeasures(Family):
     symbol = "f"
     unit = "subjects per group"
     groups = 1
-    exact = False  # exact under compound symmetry and for between, change and contrast terms; not for ar1 F tests
+    exact = False  # per design: see label()
     effect_model = RepeatedProfile
     example = {"means": [[20.0, 22.0, 23.0, 23.0]], "sd": 5.0, "correlation": 0.6}
     effect_words = {"means": "mean profiles of", "correlation": "a correlation between repeated measurements of",
@@ -227,6 +246,26 @@ class RepeatedMeasures(Family):
 
     def symbol_for(self, design: DesignBase) -> str:
         return "d" if design.effect.chosen_term in ("change", "contrast") else "f"
+
+    def sides(self, design: DesignBase) -> str:
+        """The F tests (within, between, interaction) have no sides; change and contrast are t-tests."""
+        if design.effect.chosen_term in ("within", "between", "interaction"):
+            return "F test, no sides"
+        return super().sides(design)
+
+    def label(self, design: DesignBase) -> str:
+        """Exact where the statistic's distribution is (the class docstring says which terms); the
+        Greenhouse-Geisser test and the test without sphericity are approximations, named as such."""
+        if design.cluster is not None:
+            return super().label(design)
+        effect = design.effect
+        if effect.chosen_term in ("between", "change", "contrast"):
+            return "exact"
+        if effect.structure == "compound-symmetry":
+            if effect.sphericity == "none":
+                return "exact"
+            return "approximation: Greenhouse-Geisser critical value at the expected estimated epsilon"
+        return "two-moment approximation (no sphericity)"
 
     # ------------------------------------------------------------ the term's pieces
 

@@ -11,7 +11,7 @@ import difflib
 import re
 from typing import Iterable
 
-__all__ = ["FAMILY_SYNONYMS", "ALTERNATIVE_SYNONYMS", "suggestion", "hint"]
+__all__ = ["FAMILY_SYNONYMS", "ALTERNATIVE_SYNONYMS", "STANDARDISED_EFFECTS", "suggestion", "hint", "parameter_hint"]
 
 #: Other names of a design family -> the family's ``design.test`` value.
 FAMILY_SYNONYMS: dict[str, str] = {
@@ -45,6 +45,10 @@ ALTERNATIVE_SYNONYMS: dict[str, str] = {
     "decrease": "less", "lower": "less", "smaller": "less", "down": "less",
 }
 
+#: Published standardised effect sizes; a design that takes raw units wants its difference and SD instead
+#: (the closest spelling, ``sd`` for ``d``, would point the wrong way).
+STANDARDISED_EFFECTS: frozenset[str] = frozenset({"d", "f", "f2", "w", "h", "es", "effect_size", "cohens_d"})
+
 
 def _key(text: str) -> str:
     return re.sub(r"[\s_]+", "-", text.strip().lower())
@@ -75,3 +79,20 @@ def hint(value: object, options: Iterable[str], synonyms: dict[str, str] | None 
     if found is None:
         return ""
     return f"; did you mean {found!r}?" if " " not in found else f"; use {found}"
+
+
+def parameter_hint(key: object, allowed: Iterable[str]) -> str:
+    """The hint for an unknown design parameter ``key``: ``"; did you mean 'x'?"``, a sentence, or ``"."``.
+
+    >>> parameter_hint("d", ["difference", "margin", "sd"])
+    "; this design is stated in the outcome's units: give difference and sd (a standardised d is difference: d with sd: 1)."
+    >>> parameter_hint("magrin", ["difference", "margin", "sd"])
+    "; did you mean 'margin'?"
+    """
+    allowed = list(allowed)
+    name = str(key)
+    if name in STANDARDISED_EFFECTS and "sd" in allowed and "difference" in allowed:
+        return (f"; this design is stated in the outcome's units: give difference and sd (a standardised {name} is "
+                f"difference: {name} with sd: 1).")
+    close = difflib.get_close_matches(name, allowed, n=1, cutoff=0.6)
+    return f"; did you mean {close[0]!r}?" if close else "."

@@ -10,7 +10,7 @@ from pydantic import field_validator, model_validator
 from scipy import special
 
 from .base import DesignBase, EffectBase, Family, fraction_validator, locked
-from .binary_tables import exact_power
+from .binary_tables import EXACT_CELLS, enumeration_cells, exact_power
 
 __all__ = ["TwoProportions", "ProportionPair", "cohens_h", "proportion_for_h"]
 
@@ -22,6 +22,19 @@ def cohens_h(p_from: float, p_to: float) -> float:
     0.4115
     """
     return 2 * math.asin(math.sqrt(p_to)) - 2 * math.asin(math.sqrt(p_from))
+
+
+def z_test_tails(p1: float, p2: float, n1: np.ndarray, n2: np.ndarray, z: float,
+                 corrected: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Normal approximation to the probability that the pooled z test (continuity-corrected when
+    ``corrected``) exceeds ``z`` upwards and downwards (Fleiss 1981, section 3.2; Fleiss, Tytun & Ury 1980)."""
+    delta = p2 - p1
+    pbar = (n1 * p1 + n2 * p2) / (n1 + n2)
+    sigma0 = np.sqrt(pbar * (1 - pbar) * (1 / n1 + 1 / n2))
+    sigma1 = np.sqrt(p1 * (1 - p1) / n1 + p2 * (1 - p2) / n2)
+    correction = (1 / n1 + 1 / n2) / 2 if corrected else 0.0
+    return (special.ndtr((delta - correction - z * sigma0) / sigma1),
+            special.ndtr((-delta - correction - z * sigma0) / sigma1))
 
 
 def proportion_for_h(p_from: float, h: float) -> float:
@@ -142,6 +155,7 @@ class TwoProportions(Family):
         return "corrected" if effect.continuity_correction else "pooled"
 
     def power(self, design: DesignBase, n: np.ndarray, effect_size: float | None = None) -> np.ndarray:
+        """Exact power by enumeration; beyond :data:`EXACT_CELLS` tables, the normal approximation."""
         p1, p2 = design.effect.p1, self._p2(design, effect_size)
         test = self._test(design)
         n1 = np.atleast_1d(np.asarray(n, dtype=float))
@@ -149,8 +163,16 @@ class TwoProportions(Family):
         for i, size in enumerate(n1.ravel()):
             m1 = int(size)
             m2 = math.ceil(design.allocation_ratio * m1 - 1e-9)
-            out.flat[i] = exact_power(test, m1, m2, p1, p2, design.alpha, design.alternative)  # type: ignore
+            if enumeration_cells(test, m1, m2, p1, p2) > EXACT_CELLS:
+                out.flat[i] = self.formula_power(design, np.array([m1]), effect_size)[0]
+            else:
+                out.flat[i] = exact_power(test, m1, m2, p1, p2, design.alpha, design.alternative)  # type: ignore
         return out
+
+    def enumeration_cost(self, design: DesignBase, n: float) -> float:
+        m1 = int(n)
+        m2 = math.ceil(design.allocation_ratio * m1 - 1e-9)
+        return enumeration_cells(self._test(design), m1, m2, design.effect.p1, design.effect.p2)
 
     def formula_power(self, design: DesignBase, n: np.ndarray, effect_size: float | None = None) -> np.ndarray:
         """The normal approximation to the power (Fleiss 1981; Fleiss, Tytun & Ury 1980; Cohen 1988)."""
@@ -166,13 +188,7 @@ class TwoProportions(Family):
             shift = h * np.sqrt(n1 * n2 / (n1 + n2))
             up, down = special.ndtr(shift - z), special.ndtr(-shift - z)
         else:
-            delta = p2 - p1
-            pbar = (n1 * p1 + n2 * p2) / (n1 + n2)
-            sigma0 = np.sqrt(pbar * (1 - pbar) * (1 / n1 + 1 / n2))
-            sigma1 = np.sqrt(p1 * (1 - p1) / n1 + p2 * (1 - p2) / n2)
-            correction = (1 / n1 + 1 / n2) / 2 if effect.continuity_correction else 0.0
-            up = special.ndtr((delta - correction - z * sigma0) / sigma1)
-            down = special.ndtr((-delta - correction - z * sigma0) / sigma1)
+            up, down = z_test_tails(p1, p2, n1, n2, z, effect.continuity_correction)
         if design.alternative == "greater":
             return up
         if design.alternative == "less":

@@ -44,10 +44,13 @@ from .simulate import simulated_power
 from .solve import enrolment, power_at, solve_sample_size
 
 __all__ = ["verified_sample_size", "verified_power_at", "needs_verification", "formula_method", "VERIFY_REPS",
-           "Progress"]
+           "SIMULATION_BUDGET", "Progress"]
 
 #: Replicates per candidate n unless the spec's simulation block says otherwise.
 VERIFY_REPS = 20_000
+#: Units drawn per candidate n (replicates x analysable units) above which the search is not run: at
+#: such sizes the large-sample formula's error is small and a simulation would hold a check for minutes.
+SIMULATION_BUDGET = 20_000_000
 
 #: ``progress(replicates simulated so far, None)``: the total is not known in advance.
 Progress = Callable[[int, "int | None"], None]
@@ -215,6 +218,12 @@ def verified_sample_size(
     formula = solve_sample_size(design)
     reps, seed, distribution = _settings(design, reps, seed)
     family = design.family
+    if reps * formula.n_total > SIMULATION_BUDGET:
+        return dataclasses.replace(formula, notes=(
+            f"not verified by simulation: at the formula's {formula.n_total:,} units, {reps:,} simulated experiments "
+            f"per candidate n exceed prespec's budget of {SIMULATION_BUDGET:,} simulated units; the size is the "
+            f"formula's ({family.method}), whose large-sample error is small at this n (prespec size --simulate "
+            "checks one n)", *formula.notes))
     cache = SizeCache(cache_dir)
     key = cache_key("verified-size", {"design": design.model_dump(mode="json"), "reps": reps, "seed": seed,
                                       "distribution": distribution, "algorithm": ALGORITHM})
@@ -301,6 +310,11 @@ def verified_power_at(
     formula = power_at(design, n)
     reps, seed, distribution = _settings(design, reps, seed)
     family = design.family
+    if reps * formula.n_total > SIMULATION_BUDGET:  # as for the size search: the formula, said so
+        return dataclasses.replace(formula, notes=(
+            f"not simulated: {reps:,} simulated experiments of {formula.n_total:,} units exceed prespec's budget of "
+            f"{SIMULATION_BUDGET:,} simulated units; the power is the formula's ({family.method}), whose "
+            "large-sample error is small at this n", *formula.notes))
     sim_distribution = distribution or family.default_distribution(design.as_tested())
     cache = SizeCache(cache_dir)
     key = cache_key("simulated-power", {"design": design.model_dump(mode="json"), "n": n, "reps": reps,
