@@ -100,6 +100,10 @@ def register(target: str, paths: list[str], *, authorities: list[str] | None = N
         reasons.append(f"data collection started on {start} (today is {today}); a registration must come "
                        "before the start")
     relpath, head = repo.relpath(spec_file.path), repo.head()
+    if relpath is not None and not _is_utf8(relpath):
+        reasons.append(f"{plain_text(relpath)}: the file's path is not UTF-8 text (the bytes shown as \\x..); the "
+                       "registration tag records the path as text, and a path it cannot hold could never be "
+                       "verified: rename the file (and its folders) to UTF-8 names, commit, and register again")
     digest = None
     if not reasons:
         assert relpath is not None and head is not None
@@ -148,6 +152,15 @@ def register(target: str, paths: list[str], *, authorities: list[str] | None = N
     return 0
 
 
+def _is_utf8(path: str) -> bool:
+    """Whether ``path`` is text: a name that is not UTF-8 holds the bytes as lone surrogates."""
+    try:
+        path.encode("utf-8")
+    except UnicodeEncodeError:
+        return False
+    return True
+
+
 def _committed_hash(repo: Repository, head: str, relpath: str, reasons: list[str]) -> str | None:
     """The content hash of the spec as committed at ``head`` (the blob the tag vouches for)."""
     from ..canonical import content_hash
@@ -185,8 +198,9 @@ def _write_request(request_file: str, text: bytes, spec_id: str, paths: list[str
         return _refuse([f"cannot write {request_file}: {error}"])
     where = " ".join(paths) if paths != ["."] else ""
     print(plain_text(f"wrote the RFC 3161 request to {written}; nothing is registered yet"))
-    print("send it to your time-stamping authority (content type application/timestamp-query), keep the reply, "
-          f"and run: prespec register {spec_id} {where + ' ' if where else ''}--timestamp-reply REPLY.tsr")
+    print(plain_text("send it to your time-stamping authority (content type application/timestamp-query), keep "
+                     f"the reply, and run: prespec register {spec_id} {where + ' ' if where else ''}"
+                     "--timestamp-reply REPLY.tsr"))
     print("commit nothing in between: the request names the current commit")
     return 0
 
