@@ -526,7 +526,7 @@ _YAML_1_1_BREAKS = ("\x85", "\u2028", "\u2029")
 _MAIN_WAY_CHARACTERS = (*_YAML_1_1_BREAKS, "\t")
 #: Where a text may hold the non-specific tag ``!`` (``! 64``, ``!<!> 64``): libyaml resolves such a
 #: scalar as if it were plain (64 the number); the main loader reads it as text, as YAML 1.2 says.
-_NON_SPECIFIC_TAG_RE = re.compile(r"!(?:<!>)?(?=[\s,\[\]{}]|$)")
+_NON_SPECIFIC_TAG_RE = re.compile(r"(?:^|(?<=[\s\[{,]))!(?:<!>)?(?=[\s,\[\]{}]|$)", re.MULTILINE)
 #: Whether :func:`load_bytes_fast` has a C parser to use.
 FAST_LOADER = _C is not None
 

@@ -373,6 +373,20 @@ def test_hash_json_has_no_raw_control_characters_and_the_same_values(tmp_path, r
     assert hashlib.sha256(payload["canonical"].encode("utf-8")).hexdigest() == payload["sha256"]
 
 
+def test_json_output_escapes_del_c1_and_format_characters(lab, run):
+    lab.write("mouse-diet.yaml", spec_text(start=FUTURE_START))
+    lab.commit("plan", BEFORE)
+    lab.write("mouse-diet.yaml", spec_text(analysis="PLACEHOLDER", start=FUTURE_START).replace(
+        "analysis_plan: PLACEHOLDER\n", CONTROL_PLAN))
+    lab.commit("plan text with controls", "2020-01-12T10:00:00+01:00")
+    result = run("history", "mouse-diet", lab.registry, "--json")  # the change's old and new values
+    assert result.status == 0, result.err
+    assert not _raw_controls(result.out), _raw_controls(result.out)
+    assert "\\u007f" in result.out
+    text = json.dumps(result.json(), ensure_ascii=False)
+    assert "Welch t-test\x7f on\x9b week 8\u202e butyrate." in text  # the same values once parsed
+
+
 # ------------------------------------------------------------------ render reads the registration tags once
 
 
@@ -404,3 +418,38 @@ def test_render_reads_the_registration_tags_once_per_run(tmp_path, run, monkeypa
     assert listings == ["prespec"], listings
     for i in range(3):  # and each summary still names its own registration
         assert f"prespec/mouse-{i}/v1" in (out / f"mouse-{i}.md").read_text(encoding="utf-8")
+
+
+# ------------------------------------------------------------------ no repository-configured program
+
+
+def test_a_signed_commit_does_not_run_the_repositorys_signature_program(lab, run, tmp_path):
+    """``log.showSignature`` in a repository's config makes every ``git log`` run its ``gpg.program``
+    on each signed commit; prespec reads history with signature checks off and the standard programs."""
+    import stat
+
+    def git(*args, stdin=None):
+        return subprocess.run(["git", *args], cwd=lab.root, input=stdin, capture_output=True, check=True).stdout
+
+    lab.write("mouse-diet.yaml", spec_text(start=FUTURE_START))
+    lab.commit("plan", BEFORE)
+    tree, parent = git("rev-parse", "HEAD^{tree}").decode().strip(), git("rev-parse", "HEAD").decode().strip()
+    signed = (f"tree {tree}\nparent {parent}\nauthor Lab lead <lead@lab.example> 1600000000 +0000\n"
+              "committer Lab lead <lead@lab.example> 1600000000 +0000\ngpgsig -----BEGIN PGP SIGNATURE-----\n \n"
+              " iQEzBAABCAAdFiEE\n -----END PGP SIGNATURE-----\n\na signed commit\n")  # git's commit object format
+    commit = git("hash-object", "-t", "commit", "-w", "--stdin", stdin=signed.encode()).decode().strip()
+    git("update-ref", "HEAD", commit)
+    marker = tmp_path / "ran.txt"
+    program = tmp_path / "signature-program"
+    program.write_text(f"#!/bin/sh\necho ran >> '{marker}'\nexit 1\n", encoding="utf-8")
+    program.chmod(program.stat().st_mode | stat.S_IXUSR)
+    git("config", "log.showSignature", "true")
+    git("config", "gpg.program", str(program))
+    git("log", "-1", "--format=%H")  # git itself runs it: the trap is set
+    assert marker.exists()
+    marker.unlink()
+    for argv in (["check", lab.registry], ["history", "mouse-diet", lab.registry],
+                 ["render", "--all", lab.registry, "--out", tmp_path / "site"], ["verify", "mouse-diet", lab.registry]):
+        result = run(*argv)
+        assert "internal error" not in result.err, (argv, result.err)
+        assert not marker.exists(), argv

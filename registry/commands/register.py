@@ -12,7 +12,7 @@ from typing import TYPE_CHECKING, Any
 
 from .. import __version__
 from ..discovery import UsageError
-from ..problems import InvalidSpec, plain_text
+from ..problems import InvalidSpec, json_escaped, plain_text
 from ..registration import format_message, tag_name
 
 if TYPE_CHECKING:
@@ -138,9 +138,9 @@ def register(target: str, paths: list[str], *, authorities: list[str] | None = N
                 if tokens else "self-asserted date: no time-stamping authority was asked, so the registration's date "
                 "is the lab's own clock (set timestamp.authorities in .prespec.yaml or pass --tsa URL)")
     if as_json:
-        print(json.dumps({"id": spec.id, "version": version, "tag": name, "commit": head, "sha256": digest,
+        print(json_escaped(json.dumps({"id": spec.id, "version": version, "tag": name, "commit": head, "sha256": digest,
                           "signed": sign, "timestamps": [_token_summary(a, r) for a, r in tokens],
-                          "evidence": evidence}, indent=2, ensure_ascii=False))
+                          "evidence": evidence}, indent=2, ensure_ascii=False)))
         return 0
     print(f"registered {spec.id} as {'signed ' if sign else ''}tag {name} on commit {head[:10]}")
     print(f"content sha256 {digest}")

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING
 from ..discovery import UsageError, discover
 from ..hints import id_hint
 from ..fsutil import WriteRefused, confined, write_atomic
-from ..problems import plain_text
+from ..problems import json_escaped, plain_text
 
 if TYPE_CHECKING:
     from datetime import datetime
@@ -271,7 +271,7 @@ def _print_json(rows: list[IndexRow], written: list[Path], folder: Path | None,
             spec["markdown"] = markdown.get(f"{page_stem(str(spec['id']))}.md")
     payload = {"out": None if folder is None else str(folder), "written": [str(p) for p in written],
                "specs": specs, "caution": CAUTION}
-    print(json.dumps(payload, indent=2, ensure_ascii=False))
+    print(json_escaped(json.dumps(payload, indent=2, ensure_ascii=False)))
 
 
 def _print_unwritten(rows: list[IndexRow], files: dict[str, str], as_json: bool, failed: bool) -> int:
