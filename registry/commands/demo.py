@@ -47,7 +47,8 @@ _STARTS = {
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("dir", nargs="?", metavar="DIR",
-                        help="an empty or new folder for the demo registry (default: a new temporary folder)")
+                        help="an empty folder, or a new one inside an existing folder, for the demo registry (not a "
+                        "symbolic link; default: a new temporary folder)")
 
 
 def run(args: argparse.Namespace) -> int:
