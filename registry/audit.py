@@ -25,7 +25,7 @@ from .history import Event, Snapshot, SnapshotStore, SpecHistory, UnreadableBlob
 from .registration import InvalidRegistration, parse_block, tag_version
 
 __all__ = ["RegistryHistory", "read_history", "add_history", "HistoryStatus", "find_spec",
-           "registrations", "Registration", "worktree_snapshot", "spec_history"]
+           "registrations", "Registration", "worktree_snapshot", "spec_history", "add_registration_tags"]
 
 
 @dataclass(frozen=True)
@@ -241,6 +241,7 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
             if report.id is None:
                 continue
             seen.add(report.id)
+            report.registration_tags = tags_by_id.get(report.id, [])
             extra = config_for(spec_file).locked_fields if config_for else []
             history = spec_history(registry, report.id, extra, tags=tags_by_id.get(report.id, []))
             report.history = history
@@ -258,6 +259,30 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
         deleted = _deleted_reports(registry, seen, scopes, tags_by_id)
         reports += deleted + _missing_registrations(registry, seen, scopes, tags_by_id, deleted)
     return status
+
+
+def add_registration_tags(reports: Sequence[SpecReport], files: Sequence[SpecFile]) -> None:
+    """Each report's registration tags, the tags listed once per repository (what :func:`add_history`
+    also records), for a run that reads no history but still names each spec's registrations."""
+    by_folder: dict[Path, Repository | None] = {}
+    by_root: dict[Path, dict[str, list[TagInfo]] | None] = {}
+    for report, spec_file in zip(reports, files):
+        if report.id is None or report.registration_tags is not None:
+            continue
+        folder = spec_file.path.absolute().parent
+        if folder not in by_folder:
+            by_folder[folder] = find_repository(folder)
+        repo = by_folder[folder]
+        if repo is None:
+            continue
+        if repo.root not in by_root:
+            try:
+                by_root[repo.root] = _tags_by_id(repo.tags("prespec"))
+            except GitProblem:
+                by_root[repo.root] = None  # the summary then says it cannot tell
+        tags = by_root[repo.root]
+        if tags is not None:
+            report.registration_tags = tags.get(report.id, [])
 
 
 def _no_history(report: SpecReport, spec_file: SpecFile,

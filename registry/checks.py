@@ -21,7 +21,7 @@ from .pilot import InvalidPilot, PilotMissing, pilot_root, read_pilot
 from .power import EventsOnly, InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
 from .power.results import power_text
 from .power.simulate import InvalidSimulation, SimulatedPower, simulate_plan
-from .problems import InvalidSpec, printable
+from .problems import InvalidSpec, plain_text, printable
 from .validation import validate_document
 from .yamlio import Document, load_file
 
@@ -84,6 +84,8 @@ class SpecReport:
     sequential: Any = None  # registry.power.sequential_size.SequentialSize with design.sequential
     assurance: Any = None  # registry.power.assurance.Assurance with design.assurance
     history: Any = None  # registry.history.SpecHistory when the file is in a git repository
+    #: The spec's ``prespec/<id>/vN`` tags (registry.git.TagInfo), when read once for the whole registry.
+    registration_tags: list[Any] | None = None
     #: The file's lines (printable) when it could not be loaded, so output can still show them.
     source_lines: list[str] = field(default_factory=list)
 
@@ -207,7 +209,7 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None, execut
     stem = spec_file.path.name.rsplit(".", 1)[0]
     if stem != spec.id:
         report.add("id-mismatch", "warning", "id",
-                   f"the file is named {spec_file.path.name!r} but the id is {spec.id!r}; "
+                   f"the file is named '{plain_text(spec_file.path.name)}' but the id is {spec.id!r}; "
                    f"name it {spec.id}.yaml so people find it", ("id",))
     return report
 

@@ -11,6 +11,7 @@ import argparse
 import os
 import sys
 import traceback
+import warnings
 from collections.abc import Sequence
 from types import ModuleType
 
@@ -69,7 +70,11 @@ def main(argv: list[str] | None = None) -> int:
         if not getattr(args, "command", None):
             parser.print_help(sys.stderr)
             return 2
-        return int(args.run(args))
+        with warnings.catch_warnings():
+            # numerical edge cases become findings and messages of their own; numpy's and scipy's notes
+            # about them (divide by zero, overflow) are not for the terminal, nor are they seen by workers
+            warnings.simplefilter("ignore", RuntimeWarning)
+            return int(args.run(args))
     except UsageError as error:
         print(plain_text(f"{getattr(error, 'prog', 'prespec')}: error: {error}"), file=sys.stderr)
         return 2

@@ -13,6 +13,8 @@ import os
 from dataclasses import dataclass
 from pathlib import Path
 
+from .problems import escaped
+
 __all__ = ["SpecFile", "discover", "SPEC_SUFFIXES", "UsageError", "display_name"]
 
 SPEC_SUFFIXES = (".yaml", ".yml")
@@ -53,7 +55,7 @@ def display_name(path: Path | str) -> str:
         text = str(Path(path).absolute())
     if text.isprintable():
         return text
-    return "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
+    return "".join(ch if ch.isprintable() else escaped(ch) for ch in text)
 
 
 def _link_problem(file: Path, root: Path) -> tuple[bool, str]:

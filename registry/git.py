@@ -42,6 +42,14 @@ _MARK = "\x1e"
 _FORMAT = "%x1e%H%x00%P%x00%an%x00%ae%x00%aI%x00%cn%x00%ce%x00%cI%x00"
 
 
+#: Settings every git prespec runs is given, overriding what a repository's own config says: no
+#: signature checks while reading history (``log.showSignature`` would run the repository's
+#: ``gpg.program`` on every signed commit), no file-system monitor program, and the standard
+#: signing programs wherever a signature is checked.
+_PINNED_CONFIG = ("-c", "log.showSignature=false", "-c", "core.fsmonitor=false", "-c", "gpg.program=gpg",
+                  "-c", "gpg.ssh.program=ssh-keygen", "-c", "gpg.x509.program=gpgsm")
+
+
 class GitProblem(RuntimeError):
     """git could not do what prespec asked; the message says what and why."""
 
@@ -238,7 +246,7 @@ class Repository:
 
     def _run(self, *args: str, **kwargs: object) -> str:
         try:
-            return self._repo.git.execute(["git", *args], **kwargs)  # type: ignore[call-overload]
+            return self._repo.git.execute(["git", *_PINNED_CONFIG, *args], **kwargs)  # type: ignore[call-overload]
         except GitCommandError as error:
             detail = _gist((error.stderr or "").strip().replace("stderr: ", "").strip("'\n "))
             raise GitProblem(f"git {args[0]} failed: {detail or error}") from None
@@ -249,7 +257,7 @@ class Repository:
             return self._repo.head.commit.hexsha
         except ValueError as error:
             try:  # an unborn branch names no commit; a missing or corrupt one is a fault
-                sha = self._repo.git.execute(["git", "rev-parse", "-q", "--verify", "HEAD"]).strip()
+                sha = self._repo.git.execute(["git", *_PINNED_CONFIG, "rev-parse", "-q", "--verify", "HEAD"]).strip()
             except GitCommandError:
                 return None
             raise GitProblem(f"HEAD names commit {sha[:10]}, which git cannot read "
@@ -399,7 +407,7 @@ class Repository:
         ``allowed_signers`` is the SSH allowed-signers file to check SSH signatures against."""
         if name.startswith("-"):
             raise GitProblem(f"{name!r} is not a tag name")
-        args = ["git", "-c", "gpg.program=gpg", "-c", "gpg.ssh.program=ssh-keygen", "-c", "gpg.x509.program=gpgsm"]
+        args = ["git", *_PINNED_CONFIG]
         if allowed_signers is not None:
             args += ["-c", f"gpg.ssh.allowedSignersFile={allowed_signers}"]
         try:

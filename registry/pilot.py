@@ -37,6 +37,7 @@ from pathlib import Path
 from scipy.special import chdtri
 
 from .hints import name_hint
+from .problems import escaped
 
 __all__ = ["PilotSummary", "InvalidPilot", "PilotMissing", "read_column", "summarize", "read_pilot",
            "sd_upper_limit", "file_sha256", "MISSING_MARKERS", "MAX_PILOT_BYTES", "pilot_root"]
@@ -152,7 +153,7 @@ def pilot_root(registry: Path) -> Path:
 
 def _display_root(root: Path) -> str:
     text = str(root)
-    return text if text.isprintable() else "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
+    return text if text.isprintable() else "".join(ch if ch.isprintable() else escaped(ch) for ch in text)
 
 
 def _read_bytes(path: Path, shown: str, root: Path | None = None) -> bytes:

@@ -10,7 +10,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-__all__ = ["Problem", "InvalidSpec", "NO_VALUE", "format_problem", "printable", "plain_text"]
+__all__ = ["Problem", "InvalidSpec", "NO_VALUE", "format_problem", "printable", "plain_text", "escaped",
+           "json_escaped"]
 
 
 class _NoValue:
@@ -40,11 +41,25 @@ class Problem:
         return f"{path}:{self.line}:{self.column}"
 
 
+def escaped(ch: str) -> str:
+    r"""One character that must not reach a terminal as it is, written visibly: ``\x1b``, ``\x7f``,
+    ``\u202e``. A byte of a file name that is not UTF-8 (which Python holds as a lone surrogate)
+    is shown as that byte.
+
+    >>> print(escaped(chr(0x1b)), escaped(chr(0x9b)), escaped(chr(0xdce9)))
+    \x1b \x9b \xe9
+    """
+    code = ord(ch)
+    if 0xDC80 <= code <= 0xDCFF:
+        return f"\\x{code - 0xDC00:02x}"
+    return repr(ch)[1:-1]
+
+
 def printable(text: str, limit: int = 160) -> str:
     """A source line safe to print: tabs as spaces, control characters escaped, long lines cut."""
     text = text.rstrip("\r\n").replace("\t", " ")
     if not text.isprintable():
-        text = "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
+        text = "".join(ch if ch.isprintable() else escaped(ch) for ch in text)
     return text if len(text) <= limit else text[: limit - 3] + "..."
 
 
@@ -59,8 +74,30 @@ def plain_text(value: object) -> str:
     text = str(value)
     if text.isprintable():
         return text
-    return "\n".join("".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in line)
+    return "\n".join("".join(ch if ch.isprintable() else escaped(ch) for ch in line)
                      for line in text.split("\n"))
+
+
+def json_escaped(text: str) -> str:
+    r"""JSON text with every character :func:`plain_text` would escape (DEL, C1 controls, format
+    characters, line separators, bytes of file names that are not UTF-8) written as a JSON ``\uXXXX``
+    escape: still valid JSON with the same values, and nothing raw reaches a terminal. Line breaks,
+    which JSON itself writes only between values, are kept.
+
+    >>> print(json_escaped('{"title":"a' + chr(0x7f) + chr(0x9b) + chr(0x202e) + 'b"}'))
+    {"title":"a\u007f\u009b\u202eb"}
+    """
+    if text.isprintable():
+        return text
+    return "".join(ch if ch.isprintable() or ch == "\n" else _json_escape(ch) for ch in text)
+
+
+def _json_escape(ch: str) -> str:
+    code = ord(ch)
+    if code <= 0xFFFF:
+        return f"\\u{code:04x}"
+    code -= 0x10000  # outside the BMP: a surrogate pair, as JSON writes it
+    return f"\\u{0xD800 + (code >> 10):04x}\\u{0xDC00 + (code & 0x3FF):04x}"
 
 
 def format_problem(problem: Problem, path: str, source_lines: list[str] | None = None) -> str:

@@ -14,7 +14,7 @@ from rich.table import Table
 from rich.text import Text
 
 from .checks import CAUTION, SpecReport
-from .problems import plain_text, printable
+from .problems import json_escaped, plain_text, printable
 
 __all__ = ["console", "plain", "print_table", "print_findings", "to_json", "VERDICT_STYLES"]
 
@@ -114,4 +114,4 @@ def to_json(reports: list[SpecReport], extra: dict[str, Any] | None = None) -> s
     payload: dict[str, Any] = {"specs": [r.to_dict() for r in reports]}
     payload.update(extra or {})
     payload["caution"] = CAUTION
-    return json.dumps(payload, indent=2, ensure_ascii=False)
+    return json_escaped(json.dumps(payload, indent=2, ensure_ascii=False))

@@ -11,6 +11,7 @@ import math
 import re
 import types
 import typing
+import unicodedata
 from typing import Any, Union
 
 from pydantic import BaseModel, ValidationError
@@ -142,9 +143,14 @@ def _number_hint(value: Any, name: str) -> str:
     text = value.strip()
     try:
         float(text)
-        return f" (a number in quotes is text: write {text} without the quotes)"
     except ValueError:
         pass
+    else:
+        if not text.isascii():  # float() reads other scripts' digits too; YAML numbers use 0-9 only
+            ascii_form = "".join(str(unicodedata.decimal(ch)) if unicodedata.decimal(ch, None) is not None else ch
+                                 for ch in text)
+            return f" (numbers are written with the digits 0-9: write {ascii_form})"
+        return f" (a number in quotes is text: write {text} without the quotes)"
     match = _UNIT_RE.match(text)
     if not match:
         return ""

@@ -30,6 +30,7 @@ from ruamel.yaml.composer import Composer, MaxDepthExceededError
 from ruamel.yaml.error import MarkedYAMLError, YAMLError
 from ruamel.yaml.nodes import Node
 from ruamel.yaml.reader import ReaderError
+from ruamel.yaml.tag import Tag
 
 from .problems import NO_VALUE, InvalidSpec, Problem
 
@@ -107,7 +108,15 @@ class _LimitError(MarkedYAMLError):
 
 
 class _BoundedComposer(Composer):
-    """ruamel's composer, refusing to compose more than :data:`MAX_NODES` nodes."""
+    """ruamel's composer, refusing to compose more than :data:`MAX_NODES` nodes, and reading a scalar
+    with the non-specific tag ``!`` (``! 64``) as text, as YAML 1.2 says, not resolving it as if plain."""
+
+    def compose_scalar_node(self, anchor: Any) -> Any:
+        non_specific = str(self.parser.peek_event().ctag) == "!"
+        node = super().compose_scalar_node(anchor)
+        if non_specific:
+            node.tag = Tag(suffix=_CORE + "str")
+        return node
 
     def compose_node(self, parent: Any, index: Any) -> Any:
         self.composed = getattr(self, "composed", 0) + 1
@@ -258,6 +267,8 @@ class _Builder:
 def _parse_int(text: str) -> int | float | None:
     """A YAML 1.2 core integer (decimal, 0o octal, 0x hex); None when the text is none of them."""
     clean = text.replace("_", "")
+    if not clean.isascii():  # int() also reads other scripts' digits (Arabic-Indic, fullwidth): not YAML's
+        return None
     sign = -1 if clean.startswith("-") else 1
     body = clean.lstrip("+-")
     try:
@@ -272,6 +283,8 @@ def _parse_int(text: str) -> int | float | None:
 
 def _parse_float(text: str) -> float | None:
     clean = text.replace("_", "").lower()
+    if not clean.isascii():  # float() also reads other scripts' digits: not YAML's
+        return None
     if clean in (".nan", "nan", "+.nan", "-.nan"):
         return math.nan
     if _is_inf_literal(clean):
@@ -511,6 +524,9 @@ _C = _c_loader()
 #: in YAML 1.2, and the tab, which libyaml accepts where the main loader explains it as a mistake.
 _YAML_1_1_BREAKS = ("\x85", "\u2028", "\u2029")
 _MAIN_WAY_CHARACTERS = (*_YAML_1_1_BREAKS, "\t")
+#: Where a text may hold the non-specific tag ``!`` (``! 64``, ``!<!> 64``): libyaml resolves such a
+#: scalar as if it were plain (64 the number); the main loader reads it as text, as YAML 1.2 says.
+_NON_SPECIFIC_TAG_RE = re.compile(r"(?:^|(?<=[\s\[{,]))!(?:<!>)?(?=[\s,\[\]{}]|$)", re.MULTILINE)
 #: Whether :func:`load_bytes_fast` has a C parser to use.
 FAST_LOADER = _C is not None
 
@@ -530,7 +546,8 @@ def load_bytes_fast(raw: bytes, path: str, *, main_way_problems: bool = True) ->
     if _C is None or len(raw) > MAX_FILE_BYTES or _DIRECTIVE_BYTES_RE.search(raw) is not None:
         return load_bytes(raw, path)
     text = _decode(raw, path)
-    if any(ch in text for ch in (_MAIN_WAY_CHARACTERS if main_way_problems else _YAML_1_1_BREAKS)):
+    if any(ch in text for ch in (_MAIN_WAY_CHARACTERS if main_way_problems else _YAML_1_1_BREAKS)) \
+            or _NON_SPECIFIC_TAG_RE.search(text):
         return load_text(text, path)
     composer_class, yaml_error = _C
     composer = composer_class(text)

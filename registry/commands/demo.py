@@ -8,6 +8,7 @@ one, an uncommitted edit, an underpowered and an oversized design, and a registr
 from __future__ import annotations
 
 import argparse
+import os
 import re
 import tempfile
 from pathlib import Path
@@ -46,7 +47,8 @@ _STARTS = {
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("dir", nargs="?", metavar="DIR",
-                        help="an empty or new folder for the demo registry (default: a new temporary folder)")
+                        help="an empty folder, or a new one inside an existing folder, for the demo registry (not a "
+                        "symbolic link; default: a new temporary folder)")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -134,6 +136,30 @@ def build_demo(target: Path) -> Path:
     return registry
 
 
+def _new_or_empty_folder(folder: str) -> Path:
+    """``folder``, made now if it is new, refusing anything the demo must not write into: a file, a folder
+    with something in it, a symbolic link (dangling or not: nothing is written through one, so nothing
+    lands outside the folder named), or a new folder whose parent does not exist."""
+    target = Path(folder)
+    if target.is_symlink():
+        where = os.readlink(target)
+        raise UsageError(f"{folder}: is a symbolic link (to {where!r}); the demo writes only into a real new or "
+                         "empty folder, never through a link: name the folder itself")
+    if target.exists():
+        if not target.is_dir() or any(target.iterdir()):
+            raise UsageError(f"{folder}: not an empty folder; the demo writes only into a new or empty one")
+        return target
+    parent = target.absolute().parent
+    if not parent.is_dir():
+        raise UsageError(f"{folder}: the folder {parent} it would go in does not exist; create that first, or "
+                         "name a new folder inside an existing one")
+    try:
+        target.mkdir()
+    except OSError as error:  # taken meanwhile, or the parent is not writable
+        raise UsageError(f"{folder}: cannot create the folder: {error.strerror or error}") from None
+    return target
+
+
 def demo(folder: str | None) -> int:
     from ..git import GitProblem
     from .check import check
@@ -141,13 +167,14 @@ def demo(folder: str | None) -> int:
     if folder is None:
         target = Path(tempfile.mkdtemp(prefix="prespec-demo-"))
     else:
-        target = Path(folder)
-        if target.exists() and (not target.is_dir() or any(target.iterdir())):
-            raise UsageError(f"{folder}: not an empty folder; the demo writes only into a new or empty one")
+        target = _new_or_empty_folder(folder)
     try:
         registry = build_demo(target)
     except GitProblem as error:
         raise UsageError(f"demo: {error}") from None
+    except OSError as error:  # e.g. the folder is not writable, or the disk is full
+        raise UsageError(f"demo: cannot write the demo registry into {folder or target}: "
+                         f"{error.strerror or error}") from None
     print(plain_text(f"Demo registry (a git repository with invented, dated history): {target}"))
     print(plain_text(f"Try: prespec history exercise-blood-pressure {registry}   |   "
                      f"prespec verify fibre-butyrate {registry}"))

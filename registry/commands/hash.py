@@ -6,7 +6,7 @@ import argparse
 import json
 import sys
 
-from ..problems import plain_text
+from ..problems import json_escaped, plain_text
 
 __all__ = ["hash", "HELP", "add_arguments", "run"]
 
@@ -37,12 +37,15 @@ def hash(target: str, paths: list[str], *, canonical: bool = False,  # noqa: A00
             print(plain_text(f"  {where}: {finding.field + ': ' if finding.field else ''}{finding.message}"),
                   file=sys.stderr)
         return 1
-    if as_json:
+    if as_json:  # escapes keep the JSON's values exact and its text safe on a terminal
         payload = {"id": report.spec.id, "path": report.path, "sha256": content_hash(report.spec),
                    "canonical": canonical_json(report.spec) if canonical else None}
-        print(json.dumps(payload, indent=2, ensure_ascii=False))
+        print(json_escaped(json.dumps(payload, indent=2, ensure_ascii=False)))
         return 0
     if canonical:
-        print(canonical_json(report.spec))
+        # the exact hashed text into a file or pipe; on a terminal, no raw DEL, C1 or format character
+        # (each a JSON escape there, so the line still parses to the same values)
+        text = canonical_json(report.spec)
+        print(json_escaped(text) if sys.stdout.isatty() else text)
     print(plain_text(f"{content_hash(report.spec)}  {report.spec.id}  {report.path}"))
     return 0

@@ -11,7 +11,7 @@ from typing import TYPE_CHECKING
 
 from ..discovery import UsageError
 from ..problems import InvalidSpec
-from ..problems import plain_text
+from ..problems import json_escaped, plain_text
 
 if TYPE_CHECKING:
     from ..history import SpecHistory
@@ -90,7 +90,7 @@ def history(target: str, paths: list[str], *, as_json: bool = False) -> int:
         payload["registrations"] = [{"tag": r.tag.name, "commit": r.tag.commit, "reachable": r.tag.reachable,
                                      **r.fields} for r in tags]
         payload["caution"] = CAUTION
-        print(json.dumps(payload, indent=2, ensure_ascii=False, default=str))
+        print(json_escaped(json.dumps(payload, indent=2, ensure_ascii=False, default=str)))
         return 1 if failed else 0
     _print(spec_history, [f"{r.tag.name} -> {r.tag.commit[:10]}" + ("" if r.tag.reachable else " (unreachable)")
                           for r in tags])

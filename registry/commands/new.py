@@ -128,6 +128,47 @@ amendments: []
 """
 
 
+#: Characters a title given on the command line may not hold: controls (ESC, tab, line breaks, DEL,
+#: C1), format characters (bidirectional overrides), line and paragraph separators, bytes that are
+#: not UTF-8 (lone surrogates), private-use and unassigned code points.
+_NOT_IN_TITLES = ("Cc", "Cf", "Cs", "Co", "Cn", "Zl", "Zp")
+
+
+def _check_title(title: str) -> None:
+    """Refuse a ``--title`` the spec's own check would refuse, or one that would not read back as given."""
+    import unicodedata
+
+    from ..model import Spec
+    from ..problems import escaped
+
+    limit = next(rule.max_length for rule in Spec.model_fields["title"].metadata if hasattr(rule, "max_length"))
+    bad = next(((i, ch) for i, ch in enumerate(title) if unicodedata.category(ch) in _NOT_IN_TITLES), None)
+    if bad is not None:
+        where, ch = bad
+        kind = unicodedata.category(ch)
+        what = ("a byte that is not UTF-8 text" if kind == "Cs" else
+                f"the character U+{ord(ch):04X} "
+                f"({unicodedata.name(ch, 'a control character' if kind == 'Cc' else 'not an assigned character')})")
+        raise UsageError(f"--title: {what}, shown as {escaped(ch)}, at character {where + 1}; a title is one line "
+                         "of plain text without control, format or line-break characters")
+    if len(title) > limit:
+        raise UsageError(f"--title: {len(title):,} characters; a title has at most {limit} (put the details in "
+                         "'question' or 'population')")
+
+
+def _loads_as_check_does(text: str, target: Path) -> None:
+    """The written spec must load and validate as ``check`` loads it: otherwise nothing is written."""
+    from ..problems import InvalidSpec
+    from ..validation import validate_document
+    from ..yamlio import load_bytes_fast
+
+    try:
+        validate_document(load_bytes_fast(text.encode("utf-8"), str(target)))
+    except InvalidSpec as error:  # pragma: no cover - a template that check refuses is a bug
+        raise RuntimeError(f"the template for {target} does not pass check, so nothing was written:\n{error}") \
+            from None
+
+
 def new(spec_id: str, *, folder: str = ".", test: str = "two-sample-t", title: str | None = None) -> int:
     from ..model import ID_PATTERN, SCHEMA_ID
     from ..power.catalog import UnknownFamily, get_family
@@ -140,14 +181,17 @@ def new(spec_id: str, *, folder: str = ".", test: str = "two-sample-t", title: s
         get_family(test)
     except UnknownFamily as error:
         raise UsageError(str(error)) from None
+    if title is not None:
+        _check_title(title)
     target_folder = Path(folder)
     if target_folder.exists() and not target_folder.is_dir():
         raise UsageError(f"{folder}: not a folder")
     target = target_folder / f"{spec_id}.yaml"
     schema_ref = _schema_reference(target_folder) if target_folder.exists() else SCHEMA_ID
+    text = template(spec_id, test, title, schema_ref)
+    _loads_as_check_does(text, target)
     try:
-        write_atomic(confined(target_folder, target.name), template(spec_id, test, title, schema_ref),
-                     overwrite=False)
+        write_atomic(confined(target_folder, target.name), text, overwrite=False)
     except WriteRefused as error:
         raise UsageError(str(error)) from None
     print(plain_text(f"wrote {target}: fill in the assumptions, then run 'prespec check {target}'"))

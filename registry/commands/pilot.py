@@ -9,6 +9,7 @@ import math
 from typing import TYPE_CHECKING
 
 from ..discovery import UsageError
+from ..problems import json_escaped
 
 if TYPE_CHECKING:
     from ..pilot import PilotSummary
@@ -53,7 +54,7 @@ def pilot(file: str, column: str, *, confidence: float = 0.8, as_json: bool = Fa
     if as_json:
         payload = summary.to_dict()
         payload["caution"] = CAUTION
-        print(json.dumps(payload, indent=2, ensure_ascii=False))
+        print(json_escaped(json.dumps(payload, indent=2, ensure_ascii=False)))
         return 0
     _print_human(summary)
     return 0

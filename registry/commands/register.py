@@ -12,7 +12,7 @@ from typing import TYPE_CHECKING, Any
 
 from .. import __version__
 from ..discovery import UsageError
-from ..problems import InvalidSpec, plain_text
+from ..problems import InvalidSpec, json_escaped, plain_text
 from ..registration import format_message, tag_name
 
 if TYPE_CHECKING:
@@ -100,6 +100,10 @@ def register(target: str, paths: list[str], *, authorities: list[str] | None = N
         reasons.append(f"data collection started on {start} (today is {today}); a registration must come "
                        "before the start")
     relpath, head = repo.relpath(spec_file.path), repo.head()
+    if relpath is not None and not _is_utf8(relpath):
+        reasons.append(f"{plain_text(relpath)}: the file's path is not UTF-8 text (the bytes shown as \\x..); the "
+                       "registration tag records the path as text, and a path it cannot hold could never be "
+                       "verified: rename the file (and its folders) to UTF-8 names, commit, and register again")
     digest = None
     if not reasons:
         assert relpath is not None and head is not None
@@ -134,9 +138,9 @@ def register(target: str, paths: list[str], *, authorities: list[str] | None = N
                 if tokens else "self-asserted date: no time-stamping authority was asked, so the registration's date "
                 "is the lab's own clock (set timestamp.authorities in .prespec.yaml or pass --tsa URL)")
     if as_json:
-        print(json.dumps({"id": spec.id, "version": version, "tag": name, "commit": head, "sha256": digest,
+        print(json_escaped(json.dumps({"id": spec.id, "version": version, "tag": name, "commit": head, "sha256": digest,
                           "signed": sign, "timestamps": [_token_summary(a, r) for a, r in tokens],
-                          "evidence": evidence}, indent=2, ensure_ascii=False))
+                          "evidence": evidence}, indent=2, ensure_ascii=False)))
         return 0
     print(f"registered {spec.id} as {'signed ' if sign else ''}tag {name} on commit {head[:10]}")
     print(f"content sha256 {digest}")
@@ -146,6 +150,15 @@ def register(target: str, paths: list[str], *, authorities: list[str] | None = N
     print(plain_text(f"evidence: {evidence}"))
     print(f"share it with reviewers: git push <remote> {name}")
     return 0
+
+
+def _is_utf8(path: str) -> bool:
+    """Whether ``path`` is text: a name that is not UTF-8 holds the bytes as lone surrogates."""
+    try:
+        path.encode("utf-8")
+    except UnicodeEncodeError:
+        return False
+    return True
 
 
 def _committed_hash(repo: Repository, head: str, relpath: str, reasons: list[str]) -> str | None:
@@ -185,8 +198,9 @@ def _write_request(request_file: str, text: bytes, spec_id: str, paths: list[str
         return _refuse([f"cannot write {request_file}: {error}"])
     where = " ".join(paths) if paths != ["."] else ""
     print(plain_text(f"wrote the RFC 3161 request to {written}; nothing is registered yet"))
-    print("send it to your time-stamping authority (content type application/timestamp-query), keep the reply, "
-          f"and run: prespec register {spec_id} {where + ' ' if where else ''}--timestamp-reply REPLY.tsr")
+    print(plain_text("send it to your time-stamping authority (content type application/timestamp-query), keep "
+                     f"the reply, and run: prespec register {spec_id} {where + ' ' if where else ''}"
+                     "--timestamp-reply REPLY.tsr"))
     print("commit nothing in between: the request names the current commit")
     return 0
 

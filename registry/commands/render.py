@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING
 from ..discovery import UsageError, discover
 from ..hints import id_hint
 from ..fsutil import WriteRefused, confined, write_atomic
-from ..problems import plain_text
+from ..problems import json_escaped, plain_text
 
 if TYPE_CHECKING:
     from datetime import datetime
@@ -116,6 +116,15 @@ def _targets(out: Path, names: list[str]) -> list[Path]:
     return targets
 
 
+def _add_files(files: dict[str, str], new: dict[str, str], owner: str) -> None:
+    """Add ``new`` to the files to write; a name already taken is refused, never silently replaced."""
+    taken = sorted(files.keys() & new.keys())
+    if taken:
+        raise RuntimeError(f"{owner} would be written as {', '.join(taken)}, which another file of this render "
+                           "already is; nothing was written")
+    files.update(new)
+
+
 def _write(out: Path, files: dict[str, str]) -> list[Path]:
     targets = _targets(out, list(files))
     for target, text in zip(targets, files.values()):
@@ -166,7 +175,7 @@ def _build_summary(index: int, *, rendered_at: datetime, index_link: bool) -> Su
 def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = None,
            registry: list[str] | None = None, history: bool = True, as_json: bool = False) -> int:
     """Render one spec (by id) or all; 0 when everything asked for was written, 1 otherwise."""
-    from ..audit import add_history
+    from ..audit import add_history, add_registration_tags
     from ..checks import CAUTION, check_registry, skipped_line
     from ..config import config_loader
     from ..summary import IndexRow, build_index, render_time
@@ -190,6 +199,8 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
         print(skipped_line(skipped), file=sys.stderr)
     if history:
         add_history(reports, spec_files, registry, config_for)
+    else:  # the summaries still name each spec's registration tags: list them once, not once per spec
+        add_registration_tags(reports, spec_files)
     for error in config_errors:
         print(plain_text(error), file=sys.stderr)
     if spec_id is not None:
@@ -217,11 +228,12 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
             failed = True
             continue
         summary = next(summaries)
-        files.update(summary.files())
-        rows.append(IndexRow(report, f"{summary.spec_id}.html"))
+        _add_files(files, summary.files(), f"the summary of {summary.spec_id!r}")
+        rows.append(IndexRow(report, summary.page))
     if all_specs:
         index_md, index_html = build_index(rows, rendered_at)
-        files.update({SITE_SCRIPT_NAME: SITE_SCRIPT, "index.md": index_md, "index.html": index_html})
+        _add_files(files, {SITE_SCRIPT_NAME: SITE_SCRIPT, "index.md": index_md, "index.html": index_html},
+                   "the registry index")
     if out is None:  # nothing is written: the registry stays as it is
         return _print_unwritten(rows, files, as_json, failed)
     try:
@@ -251,14 +263,15 @@ def _row_json(row: IndexRow) -> dict[str, object]:
 def _print_json(rows: list[IndexRow], written: list[Path], folder: Path | None,
                 markdown: dict[str, str] | None = None) -> None:
     from ..checks import CAUTION
+    from ..summary import page_stem
 
     specs = [_row_json(row) for row in rows]
     if markdown is not None:
         for spec in specs:
-            spec["markdown"] = markdown.get(f"{spec['id']}.md")
+            spec["markdown"] = markdown.get(f"{page_stem(str(spec['id']))}.md")
     payload = {"out": None if folder is None else str(folder), "written": [str(p) for p in written],
                "specs": specs, "caution": CAUTION}
-    print(json.dumps(payload, indent=2, ensure_ascii=False))
+    print(json_escaped(json.dumps(payload, indent=2, ensure_ascii=False)))
 
 
 def _print_unwritten(rows: list[IndexRow], files: dict[str, str], as_json: bool, failed: bool) -> int:

@@ -12,7 +12,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from ..discovery import UsageError
-from ..problems import InvalidSpec
+from ..problems import InvalidSpec, json_escaped
 
 if TYPE_CHECKING:
     from ..audit import Registration
@@ -133,11 +133,11 @@ def verify(target: str, paths: list[str], *, as_json: bool = False, now: datetim
     if as_json:
         signature = None if outcome.signature is None else {
             k: outcome.signature[k] for k in ("kind", "verified", "signer")}
-        print(json.dumps({
+        print(json_escaped(json.dumps({
             "id": spec_id, "version": reg.version if reg else None, "holds": holds, "sha256": outcome.digest,
             "commit": reg.tag.commit if reg else None, "timestamp": outcome.timestamp, "signature": signature,
             "problems": problems, "evidence": sentence, "deviations": outcome.deviations,
-            "checks": [c.__dict__ for c in outcome.checks], "caution": CAUTION}, indent=2, ensure_ascii=False))
+            "checks": [c.__dict__ for c in outcome.checks], "caution": CAUTION}, indent=2, ensure_ascii=False)))
         return 0 if holds else 1
     print(_plain(sentence))
     for check in outcome.checks:

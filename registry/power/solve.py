@@ -199,6 +199,16 @@ def _individual(design: DesignBase, n: int) -> int:
     return math.floor(n / design.design_effect + 1e-9)
 
 
+def _start(family: Family, design: DesignBase, es: float) -> float:
+    """The family's normal-approximation n, ``inf`` when an effect so small that its square underflows
+    makes the formula divide by zero (the caller then says the effect is too small)."""
+    with np.errstate(divide="ignore", over="ignore", invalid="ignore", under="ignore"):
+        try:
+            return float(family.approximate_n(design, es))
+        except (ZeroDivisionError, OverflowError):
+            return math.inf
+
+
 def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> SampleSize:
     """The smallest analysable n reaching ``design.power``, with enrolment after attrition.
 
@@ -231,7 +241,7 @@ def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> S
             f"the {family.title} needs {needed:,} events ({family.method}); how many units to enrol depends on "
             "how many of them have the event before the analysis: give event_probability, or median_control with "
             "accrual and follow_up (exponential survival, uniform accrual), to turn events into units"))
-    start = family.approximate_n(tested, es)
+    start = _start(family, tested, es)
     if not math.isfinite(start) or start > MAX_N:
         raise InfeasibleDesign(
             f"the effect ({family.symbol_for(design)} = {es:.4g}) is too small: more than {MAX_N:,} per group "

@@ -11,13 +11,15 @@ from pathlib import Path
 
 from .. import __version__
 from ..checks import CAUTION, SpecReport
-from .document import IndexRow, drift_verdict, figure_alt, figure_name, index_markdown, summary_markdown
+from .document import (SITE_FILES, IndexRow, drift_verdict, figure_alt, figure_name, index_markdown, page_stem,
+                       summary_markdown)
 from .figure import inline_svg, power_figure
 from .htmlpage import insert_figure, markdown_to_html, page
 from .numbers import analysable, power_curve
 from .provenance import Provenance, iso_utc, provenance, render_time
 
-__all__ = ["Summary", "build_summary", "build_index", "IndexRow", "drift_verdict", "render_time", "Provenance"]
+__all__ = ["Summary", "build_summary", "build_index", "IndexRow", "drift_verdict", "render_time", "Provenance",
+           "SITE_FILES", "page_stem"]
 
 
 @dataclass(frozen=True)
@@ -32,8 +34,14 @@ class Summary:
     #: Further figures by file name (the boundary figure of a group-sequential design).
     figures: dict[str, str] = field(default_factory=dict)
 
+    @property
+    def page(self) -> str:
+        """The HTML page's file name (``index_spec.html`` for a spec whose id is ``index``: see
+        :func:`~registry.summary.document.page_stem`)."""
+        return f"{page_stem(self.spec_id)}.html"
+
     def files(self) -> dict[str, str]:
-        return {f"{self.spec_id}.md": self.markdown, f"{self.spec_id}.html": self.html,
+        return {f"{page_stem(self.spec_id)}.md": self.markdown, self.page: self.html,
                 figure_name(self.spec_id): self.svg, **self.figures}
 
 

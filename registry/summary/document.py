@@ -19,11 +19,12 @@ from ..guidelines import REGISTRY_KEEPS, coverage, guidelines_for, study_type
 from ..power.base import DesignBase, Family
 from ..power.results import power_text
 from . import mdtext as md
+from .htmlpage import SITE_SCRIPT_NAME
 from .numbers import Scenario, analysable, has_spread, sensitivity
 from .provenance import Provenance, iso_utc
 
 __all__ = ["HISTORY_KINDS", "drift_verdict", "summary_markdown", "index_markdown", "IndexRow", "figure_name",
-           "figure_alt"]
+           "figure_alt", "SITE_FILES", "page_stem"]
 
 #: Finding kinds that come from reading the spec's git history, most serious first.
 HISTORY_KINDS: tuple[str, ...] = ("drift", "history-unreadable", "incomplete-history", "untracked", "uncommitted",
@@ -84,6 +85,23 @@ def _with_unit(name: str, value: float, unit: str | None, family: Family) -> str
     text = md.inline(shown) if shown is not None else _num(value)
     in_outcome_units = name in _OUTCOME_UNIT_FIELDS and has_spread(family)
     return f"{text} {md.inline(unit)}" if unit and in_outcome_units else text
+
+
+#: The registry site's own files (``render --all`` writes them); no summary takes one of these names.
+SITE_FILES: tuple[str, ...] = ("index.md", "index.html", SITE_SCRIPT_NAME)
+
+
+def page_stem(spec_id: str) -> str:
+    """The name, without suffix, of a spec's summary files (``<stem>.md``, ``<stem>.html``): the id, or
+    ``<id>_spec`` when a file named after the id would be one of the site's own (:data:`SITE_FILES`).
+    An id never holds ``_``, so the moved name is never another spec's.
+
+    >>> page_stem("fibre-butyrate"), page_stem("index")
+    ('fibre-butyrate', 'index_spec')
+    """
+    if any(f"{spec_id}{suffix}" in SITE_FILES for suffix in (".md", ".html")):
+        return f"{spec_id}_spec"
+    return spec_id
 
 
 def figure_name(spec_id: str) -> str:

@@ -13,6 +13,7 @@ from ..canonical import content_hash
 from ..checks import SpecReport
 from ..discovery import UsageError
 from ..git import GitProblem, find_repository
+from ..problems import plain_text
 
 __all__ = ["Provenance", "provenance", "render_time", "iso_utc"]
 
@@ -62,11 +63,11 @@ def provenance(report: SpecReport, path: Path, rendered_at: datetime) -> Provena
     if repo is not None and relative is not None:
         try:
             modified = not repo.matches_head(relative, path)  # blobs compared: no index, no repository programs
-            tags = tuple((r.tag.name, r.tag.commit) for r in registrations(repo, spec.id))
+            tags = tuple((r.tag.name, r.tag.commit) for r in registrations(repo, spec.id, report.registration_tags))
         except GitProblem:
             modified = True  # cannot tell: never claim the summary matches a commit
     return Provenance(
-        spec_path=relative or report.path,
+        spec_path=plain_text(relative) if relative else report.path,
         commit=last.sha if last else None,
         committed=last.committer_date if last else None,
         modified=modified,
@@ -87,17 +88,30 @@ def _verify_command(spec_id: str, relative: str | None) -> str:
 
 def _shell_word(text: str) -> str:
     """``text`` as one POSIX shell word (spaces, backticks, ``$(...)`` stay literal); a name with control
-    characters in ``$'...'`` form, which bash and zsh read.
+    characters in ``$'...'`` form, which bash and zsh read (a byte of a name that is not UTF-8 as
+    that byte).
 
     >>> _shell_word("my data/$(id)")
     "'my data/$(id)'"
     >>> print(_shell_word("a" + chr(10) + "b"))
     $'a\\x0ab'
+    >>> print(_shell_word("caf" + chr(0xdce9)))
+    $'caf\\xe9'
     """
     import shlex
 
     if text.isprintable():
         return shlex.quote(text)
-    body = "".join("\\" + ch if ch in "'\\" else ch if ch.isprintable() else
-                   f"\\x{ord(ch):02x}" if ord(ch) < 256 else f"\\u{ord(ch) & 0xFFFF:04x}" for ch in text)
+    body = "".join("\\" + ch if ch in "'\\" else ch if ch.isprintable() else _dollar_escape(ch) for ch in text)
     return f"$'{body}'"
+
+
+def _dollar_escape(ch: str) -> str:
+    """One unprintable character inside ``$'...'``: ``\\xHH`` (an ASCII control, or a byte of a name
+    that is not UTF-8), else ``\\uHHHH`` or ``\\UHHHHHHHH`` (bash writes those as UTF-8)."""
+    code = ord(ch)
+    if code < 0x80:
+        return f"\\x{code:02x}"
+    if 0xDC80 <= code <= 0xDCFF:
+        return f"\\x{code - 0xDC00:02x}"
+    return f"\\u{code:04x}" if code <= 0xFFFF else f"\\U{code:08x}"
