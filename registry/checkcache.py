@@ -1,9 +1,9 @@
 """Warm ``check``: the results of earlier runs, reused while nothing they depend on has changed.
 
-Two kinds of entry, both JSON files in the folder :func:`registry.power.cache.default_cache_dir`
+Two kinds of entry, both JSON files in the folder :func:`registry.diskcache.default_cache_dir`
 names (``<git dir>/prespec/check-cache`` when the registry is in a git repository, else the user
 cache folder; never the working tree), written and read with the machinery of the size cache
-(:class:`registry.power.cache.SizeCache`: temporary file and rename, a damaged entry is absent):
+(:class:`registry.diskcache.SizeCache`: temporary file and rename, a damaged entry is absent):
 
 - one per spec file: what ``check`` found in the file itself (validation, the recomputed size and
   every per-file finding), keyed by the git blob id of its bytes, the prespec version, the file's
@@ -34,7 +34,7 @@ from typing import Any, Callable, Sequence
 
 from .checks import Finding, SpecReport
 from .discovery import SpecFile
-from .power.cache import SizeCache, cache_key, default_cache_dir
+from .diskcache import SizeCache, cache_key, default_cache_dir
 from .problems import InvalidSpec
 from .yamlio import read_spec_bytes
 

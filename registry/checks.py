@@ -12,22 +12,26 @@ import re
 from collections import defaultdict
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Literal
+from typing import TYPE_CHECKING, Any, Literal
 
 from .config import RegistryConfig
 from .discovery import SpecFile
-from .model import ID_PATTERN, Spec
-from .pilot import InvalidPilot, PilotMissing, pilot_root, read_pilot
-from .power import EventsOnly, InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
-from .power.results import power_text
-from .power.simulate import InvalidSimulation, SimulatedPower, simulate_plan
 from .problems import InvalidSpec, printable
-from .validation import validate_document
-from .yamlio import Document, load_bytes_fast, load_file
+
+if TYPE_CHECKING:  # the model and the statistics load when a file is checked, not when results are shown
+    from .model import Spec
+    from .power import PowerAtN, SampleSize
+    from .power.simulate import SimulatedPower
+    from .yamlio import Document
 
 __all__ = ["Finding", "SpecReport", "check_file", "check_files", "Severity", "CAUTION", "RECOMMENDED_FIELDS"]
 
-_ID_RE = re.compile(ID_PATTERN)
+
+@functools.lru_cache(maxsize=None)
+def _id_re() -> re.Pattern[str]:
+    from .model import ID_PATTERN
+
+    return re.compile(ID_PATTERN)
 
 Severity = Literal["error", "warning", "info"]
 
@@ -180,6 +184,9 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None, execut
     """Load, validate and size one spec file. Never raises for a bad file: it becomes findings.
 
     ``raw``: the file's bytes when the caller has read them already (the check cache hashes them)."""
+    from .validation import validate_document
+    from .yamlio import load_bytes_fast, load_file
+
     config = config or RegistryConfig()
     report = SpecReport(path=spec_file.display)
     if spec_file.refusal:
@@ -195,7 +202,7 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None, execut
     if not_a_spec(data):
         report.add("not-a-spec", "info", "", "YAML with no spec field (no id, no design), so not a spec; skipped")
         return report
-    if isinstance(data.get("id"), str) and _ID_RE.fullmatch(data["id"]):
+    if isinstance(data.get("id"), str) and _id_re().fullmatch(data["id"]):
         report.id = data["id"]  # shown beside the errors; an unchecked id could carry markup
     try:
         report.spec = validate_document(report.document)
@@ -234,8 +241,12 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None, execut
 
 def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | None = None,
           executor: Any = None) -> None:
-    design = spec.design
+    from .power import EventsOnly, InfeasibleDesign, power_at, solve_sample_size
+    from .power.results import power_text
+    from .power.simulate import InvalidSimulation
     from .power.verify import needs_verification
+
+    design = spec.design
 
     verify = needs_verification(design)
     try:
@@ -346,6 +357,8 @@ def _analysable_note(analysable: int, attrition: float) -> str:
 
 def _simulation(report: SpecReport, spec: Spec) -> None:
     """Run ``design.simulation`` at the planned analysable n and compare it with the exact power."""
+    from .power.simulate import InvalidSimulation, simulate_plan
+
     design = spec.design
     if design.simulation is None or report.at_planned is None:
         return
@@ -388,6 +401,8 @@ def _pilot(report: SpecReport, spec: Spec, spec_file: SpecFile) -> None:
     source = spec.design.pilot
     if source is None:
         return
+    from .pilot import InvalidPilot, PilotMissing, pilot_root, read_pilot
+
     path = spec_file.path.parent / source.file
     shown = (Path(spec_file.display).parent / source.file).as_posix()
     loc = ("design", "pilot", "file")
@@ -431,6 +446,8 @@ def _pilot(report: SpecReport, spec: Spec, spec_file: SpecFile) -> None:
 
 
 def _needed_with(spec: Spec, sd: float) -> str:
+    from .power import InfeasibleDesign, solve_sample_size
+
     design = spec.design
     effect = design.effect.model_copy(update={"sd": sd})
     try:
@@ -515,6 +532,8 @@ def _template_text(report: SpecReport, spec: Spec) -> None:
 
 def not_a_spec(data: Any) -> bool:
     """A YAML mapping with keys, none of them a spec field (an environment or CI file, say)."""
+    from .model import Spec
+
     return isinstance(data, dict) and bool(data) and not any(key in Spec.model_fields for key in data)
 
 
