@@ -98,10 +98,9 @@ class SizeCache:
     def get(self, key: str) -> dict[str, Any] | None:
         if self.folder is None:
             return None
-        path = self.folder / f"{key}.json"
         try:
-            data = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, ValueError):
+            data = json.loads(_read_regular(self.folder / f"{key}.json").decode("utf-8"))
+        except (OSError, ValueError, RecursionError):
             return None
         if not isinstance(data, dict) or data.get("key") != key or not isinstance(data.get("value"), dict):
             return None  # damaged or foreign: rebuilt by the next put
@@ -115,5 +114,20 @@ class SizeCache:
         try:
             write_atomic(self.folder / f"{key}.json", json.dumps({"key": key, "value": value}, sort_keys=True),
                          durable=self.durable)
-        except OSError:
-            pass  # a read-only registry or full disk only costs speed
+        except (OSError, ValueError):  # ValueError: fsutil.WriteRefused, e.g. a link where the entry goes
+            pass  # a read-only registry, a full disk or a planted link only costs speed
+
+
+def _read_regular(path: Path) -> bytes:
+    """A regular file's bytes; OSError for anything else (a FIFO planted there is never waited on)."""
+    import os
+    import stat
+
+    fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_BINARY", 0))
+    try:
+        if not stat.S_ISREG(os.fstat(fd).st_mode):
+            raise OSError(f"{path} is not a regular file")
+        with os.fdopen(fd, "rb", closefd=False) as handle:
+            return handle.read()
+    finally:
+        os.close(fd)

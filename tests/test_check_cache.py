@@ -239,3 +239,17 @@ def test_the_plain_table_is_the_one_rich_draws(seed):
     else:
         too_wide = sum(max([len(n)] + [len(r[i]) for r in rows]) for i, (n, _) in enumerate(_COLUMNS)) + 18 > 120
         assert too_wide or any(cell != cell.strip() for row in rows for cell in row)
+
+
+def test_a_fifo_or_link_in_the_cache_folder_is_passed_over(run, lab, tmp_path):
+    cold = run("check", lab.registry, "--json", "--no-cache").out
+    run("check", lab.registry, "--json")
+    entries = _entries(lab.root)
+    os.unlink(entries[0])
+    os.mkfifo(entries[0])  # never opened for a blocking read
+    elsewhere = tmp_path / "elsewhere.json"
+    elsewhere.write_text("{}", encoding="utf-8")
+    os.unlink(entries[1])
+    os.symlink(elsewhere, entries[1])  # never written through
+    assert run("check", lab.registry, "--json").out == cold
+    assert elsewhere.read_text(encoding="utf-8") == "{}"

@@ -116,10 +116,12 @@ def _targets(out: Path, names: list[str]) -> list[Path]:
     return targets
 
 
-def _write(out: Path, files: dict[str, str]) -> list[Path]:
+def _write(out: Path, files: dict[str, str], *, durable: bool = True) -> list[Path]:
+    """Write ``files`` into ``out``, each through a temporary file and a rename; ``durable=False``
+    skips flushing each to disk (the summaries of --all: regenerable, and thousands of them)."""
     targets = _targets(out, list(files))
     for target, text in zip(targets, files.values()):
-        write_atomic(target, text)
+        write_atomic(target, text, durable=durable)
     return targets
 
 
@@ -291,7 +293,8 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
             if out is None:
                 files.update(summary.files())
                 continue
-            written += _write(folder, summary.files())  # each summary as it is done: an interrupt keeps them
+            # each summary as it is done: an interrupt keeps them (the index, written last, is flushed to disk)
+            written += _write(folder, summary.files(), durable=not all_specs)
             progress.advance()
         progress.close()
         if all_specs:  # the index last, once every page it links to is written
