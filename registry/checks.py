@@ -488,10 +488,10 @@ def _template_texts(test: str) -> tuple[tuple[tuple[Any, ...], str], ...]:
     from datetime import date as _date
 
     from .commands.new import template
-    from .yamlio import load_bytes
+    from .yamlio import load_bytes_fast
 
-    data = load_bytes(template(_ID_SENTINEL, test, None, "schema.json", _date(2000, 1, 1)).encode("utf-8"),
-                      "template").data
+    data = load_bytes_fast(template(_ID_SENTINEL, test, None, "schema.json", _date(2000, 1, 1)).encode("utf-8"),
+                           "template").data
     out: list[tuple[tuple[Any, ...], str]] = []
 
     def walk(value: Any, loc: tuple[Any, ...]) -> None:
