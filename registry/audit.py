@@ -245,8 +245,6 @@ def _repository_history(repo: Repository, members: list[tuple[SpecReport, SpecFi
                         status: HistoryStatus, reports: list[SpecReport]) -> None:
     """:func:`add_history` for one repository: findings on ``members``, new reports appended to ``reports``."""
     root = repo.root
-    for report, _ in members:
-        report.ensure_document()
     known = {rel: report.id for report, spec_file in members if report.id
              for rel in [repo.relpath(spec_file.path)] if rel}
     try:
@@ -276,18 +274,31 @@ def _repository_history(repo: Repository, members: list[tuple[SpecReport, SpecFi
         history = spec_history(registry, report.id, extra, tags=tags_by_id.get(report.id, []))
         report.history = history
         found = list(history.findings)
-        work = worktree_snapshot(report)
-        if work is not None:
-            head = registry.head_snapshot(report.id)
-            if head is None:  # the working-tree check below says "untracked" with the right severity
-                found = [f for f in found if f.kind != "untracked"]
-            found += uncommitted_findings(head, work, today, extra_locked=extra, started_on=history.started_on)
+        if not _committed_as_is(report, registry.head_snapshot(report.id)):
+            report.ensure_document()
+            work = worktree_snapshot(report)
+            if work is not None:
+                head = registry.head_snapshot(report.id)
+                if head is None:  # the working-tree check below says "untracked" with the right severity
+                    found = [f for f in found if f.kind != "untracked"]
+                found += uncommitted_findings(head, work, today, extra_locked=extra,
+                                              started_on=history.started_on)
+        if found:
+            report.ensure_document()  # the findings' lines and columns are the working file's
         report.findings += [_with_position(f, report) for f in found]
     for blob, why in registry.unattributed().items():
         status.problems.append(f"{root}: a version of a spec file (blob {blob[:10]}) cannot be read, and no "
                                f"spec it belongs to could be named; its history may be incomplete ({why})")
     deleted = _deleted_reports(registry, seen, scopes, tags_by_id)
     reports += deleted + _missing_registrations(registry, seen, scopes, tags_by_id, deleted)
+
+
+def _committed_as_is(report: SpecReport, head: Snapshot | None) -> bool:
+    """Whether a report rebuilt from the check cache is of exactly HEAD's bytes for its id: then the
+    working tree changes nothing against HEAD (no uncommitted finding) and the file need not be
+    loaded again."""
+    raw = getattr(report, "raw", None)
+    return isinstance(raw, bytes) and head is not None and not head.unreadable and head.raw == raw
 
 
 def _no_history(report: SpecReport, spec_file: SpecFile,
