@@ -5,8 +5,6 @@ process's, byte for byte, and a progress bar appears on a terminal only."""
 from __future__ import annotations
 
 import io
-import shutil
-import subprocess
 import sys
 from pathlib import Path
 
@@ -15,7 +13,7 @@ import pytest
 import registry.commands.render as render_command
 import registry.summary as summary_module
 
-from .conftest import EXAMPLES, ROOT
+from .conftest import EXAMPLES
 
 EPOCH = "1800000000"  # 2027-01-15T08:00:00Z
 
