@@ -5,7 +5,7 @@ each, one commit per version (``git fast-import``; 10% of the specs drift after 
 then times, in one run and interleaved:
 
 - the floor: ``git log -p`` over the same history;
-- cold: ``prespec check REGISTRY`` in a new process (start-up, loading, validating and sizing every
+- cold: ``prespec check --no-cache REGISTRY`` in a new process (start-up, loading, validating and sizing every
   current file, reading and analysing the whole history, printing the report).
 
 Prints the median of the repeats and the ratio to the floor; targets: within 10x, growing linearly
@@ -93,7 +93,7 @@ def measure(specs: int) -> dict[str, float]:
     with tempfile.TemporaryDirectory(prefix="prespec-bench-check-") as folder:
         root = Path(folder) / "lab"
         build(root, specs, complete_spec)
-        prespec = [sys.executable, "-m", "registry", "check"]
+        prespec = [sys.executable, "-m", "registry", "check", "--no-cache"]  # cold: no cached results
         expected = len(range(0, specs, 10))
         times: dict[str, list[float]] = {"git": [], "cold": []}
         for _ in range(REPEATS):

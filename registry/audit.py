@@ -193,9 +193,11 @@ def _in_scope(path: Path, scopes: Sequence[Path]) -> bool:
 
 def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequence[str],
                 config_for: Callable[[SpecFile], RegistryConfig] | None = None,
-                today: date | None = None) -> HistoryStatus:
+                today: date | None = None, cache: Any = None) -> HistoryStatus:
     """Add history findings to each report whose file lies in a git repository (and a report for
-    each spec deleted from HEAD or the working tree within ``paths``)."""
+    each spec deleted from HEAD or the working tree within ``paths``). ``cache`` (a
+    :class:`registry.checkcache.CheckCache`) answers for a repository whose state and members are
+    those of a stored run, and keeps the results of the others."""
     today = today or date.today()
     status = HistoryStatus()
     repos: dict[Path, tuple[Repository, list[tuple[SpecReport, SpecFile]]]] = {}
@@ -207,6 +209,7 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
         repo = by_folder[folder]
         if repo is None:
             status.outside.append(report.path)
+            report.ensure_document()
             _no_history(report, spec_file, config_for, today)
             continue
         repos.setdefault(repo.root, (repo, []))[1].append((report, spec_file))
@@ -216,49 +219,87 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
         if repo is not None and repo.root not in repos:
             repos[repo.root] = (repo, [])
     for root, (repo, members) in repos.items():
-        known = {rel: report.id for report, spec_file in members if report.id
-                 for rel in [repo.relpath(spec_file.path)] if rel}
-        try:
-            registry = read_history(repo, known)
-            all_tags = repo.tags("prespec")
-        except GitProblem as error:
-            status.problems.append(f"{root}: {error}")
-            for report, _ in members:
-                report.findings.append(Finding(
-                    "history-unreadable", "error", "", None,
-                    f"the git history of {root} cannot be read ({error}); drift cannot be ruled out. Run "
-                    "'git fsck' there and restore the missing objects from another clone"))
+        locked = (lambda f: config_for(f).locked_fields) if config_for else (lambda f: [])
+        key = cache.history_key(repo, members, scopes, locked, today) if cache is not None else None
+        stored = cache.history_get(repo, key, len(members)) if key is not None else None
+        if stored is not None:
+            for (report, _), (found, history) in zip(members, stored["members"]):
+                report.findings += found
+                report.history = history
+            status.repositories += stored["repositories"]
+            status.problems += stored["problems"]
+            reports += stored["extra"]
             continue
-        tags_by_id = _tags_by_id(all_tags)
-        status.repositories.append({"root": str(root), "head": registry.head, "shallow": registry.shallow,
-                                    "detached": registry.detached, "commits": len(registry.commits)})
-        for report, _ in members:  # a committed file parsed and validated once, not again from git
-            head = registry.head_snapshot(report.id) if report.id and report.spec and report.document else None
-            if head is not None and head.raw is not None and head.raw == report.document.source.encode("utf-8"):
-                head.adopt(report.document.data, report.spec)
-        seen: set[str] = set()
-        for report, spec_file in members:
-            if report.id is None:
-                continue
-            seen.add(report.id)
-            report.registration_tags = tags_by_id.get(report.id, [])
-            extra = config_for(spec_file).locked_fields if config_for else []
-            history = spec_history(registry, report.id, extra, tags=tags_by_id.get(report.id, []))
-            report.history = history
-            found = list(history.findings)
+        before = [len(report.findings) for report, _ in members]
+        counts = (len(status.repositories), len(status.problems), len(reports))
+        _repository_history(repo, members, scopes, config_for, today, status, reports)
+        if key is not None and len(status.repositories) > counts[0]:
+            cache.history_put(repo, key, [(report.findings[n:], report.history)
+                                          for (report, _), n in zip(members, before)],
+                              status.repositories[counts[0]:], status.problems[counts[1]:], reports[counts[2]:])
+    return status
+
+
+def _repository_history(repo: Repository, members: list[tuple[SpecReport, SpecFile]], scopes: Sequence[Path],
+                        config_for: Callable[[SpecFile], RegistryConfig] | None, today: date,
+                        status: HistoryStatus, reports: list[SpecReport]) -> None:
+    """:func:`add_history` for one repository: findings on ``members``, new reports appended to ``reports``."""
+    root = repo.root
+    known = {rel: report.id for report, spec_file in members if report.id
+             for rel in [repo.relpath(spec_file.path)] if rel}
+    try:
+        registry = read_history(repo, known)
+        all_tags = repo.tags("prespec")
+    except GitProblem as error:
+        status.problems.append(f"{root}: {error}")
+        for report, _ in members:
+            report.findings.append(Finding(
+                "history-unreadable", "error", "", None,
+                f"the git history of {root} cannot be read ({error}); drift cannot be ruled out. Run "
+                "'git fsck' there and restore the missing objects from another clone"))
+        return
+    tags_by_id = _tags_by_id(all_tags)
+    status.repositories.append({"root": str(root), "head": registry.head, "shallow": registry.shallow,
+                                "detached": registry.detached, "commits": len(registry.commits)})
+    for report, _ in members:  # a committed file parsed and validated once, not again from git
+        head = registry.head_snapshot(report.id) if report.id and report.spec and report.document else None
+        if head is not None and head.raw is not None and head.raw == report.document.source.encode("utf-8"):
+            head.adopt(report.document.data, report.spec)
+    seen: set[str] = set()
+    for report, spec_file in members:
+        if report.id is None:
+            continue
+        seen.add(report.id)
+        report.registration_tags = tags_by_id.get(report.id, [])
+        extra = config_for(spec_file).locked_fields if config_for else []
+        history = spec_history(registry, report.id, extra, tags=tags_by_id.get(report.id, []))
+        report.history = history
+        found = list(history.findings)
+        if not _committed_as_is(report, registry.head_snapshot(report.id)):
+            report.ensure_document()
             work = worktree_snapshot(report)
             if work is not None:
                 head = registry.head_snapshot(report.id)
                 if head is None:  # the working-tree check below says "untracked" with the right severity
                     found = [f for f in found if f.kind != "untracked"]
-                found += uncommitted_findings(head, work, today, extra_locked=extra, started_on=history.started_on)
-            report.findings += [_with_position(f, report) for f in found]
-        for blob, why in registry.unattributed().items():
-            status.problems.append(f"{root}: a version of a spec file (blob {blob[:10]}) cannot be read, and no "
-                                   f"spec it belongs to could be named; its history may be incomplete ({why})")
-        deleted = _deleted_reports(registry, seen, scopes, tags_by_id)
-        reports += deleted + _missing_registrations(registry, seen, scopes, tags_by_id, deleted)
-    return status
+                found += uncommitted_findings(head, work, today, extra_locked=extra,
+                                              started_on=history.started_on)
+        if found:
+            report.ensure_document()  # the findings' lines and columns are the working file's
+        report.findings += [_with_position(f, report) for f in found]
+    for blob, why in registry.unattributed().items():
+        status.problems.append(f"{root}: a version of a spec file (blob {blob[:10]}) cannot be read, and no "
+                               f"spec it belongs to could be named; its history may be incomplete ({why})")
+    deleted = _deleted_reports(registry, seen, scopes, tags_by_id)
+    reports += deleted + _missing_registrations(registry, seen, scopes, tags_by_id, deleted)
+
+
+def _committed_as_is(report: SpecReport, head: Snapshot | None) -> bool:
+    """Whether a report rebuilt from the check cache is of exactly HEAD's bytes for its id: then the
+    working tree changes nothing against HEAD (no uncommitted finding) and the file need not be
+    loaded again."""
+    raw = getattr(report, "raw", None)
+    return isinstance(raw, bytes) and head is not None and not head.unreadable and head.raw == raw
 
 
 def add_registration_tags(reports: Sequence[SpecReport], files: Sequence[SpecFile]) -> None:

@@ -10,11 +10,12 @@ from __future__ import annotations
 import hashlib
 import json
 from datetime import date
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from pydantic import BaseModel
 
-from .model import Spec
+if TYPE_CHECKING:
+    from .model import Spec
 
 __all__ = ["locked_view", "canonical_json", "content_hash", "is_locked_field"]
 

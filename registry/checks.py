@@ -12,22 +12,26 @@ import re
 from collections import defaultdict
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Literal
+from typing import TYPE_CHECKING, Any, Literal
 
 from .config import RegistryConfig
 from .discovery import SpecFile
-from .model import ID_PATTERN, Spec
-from .pilot import InvalidPilot, PilotMissing, pilot_root, read_pilot
-from .power import EventsOnly, InfeasibleDesign, PowerAtN, SampleSize, power_at, solve_sample_size
-from .power.results import power_text
-from .power.simulate import InvalidSimulation, SimulatedPower, simulate_plan
 from .problems import InvalidSpec, plain_text, printable
-from .validation import validate_document
-from .yamlio import Document, load_file
+
+if TYPE_CHECKING:  # the model and the statistics load when a file is checked, not when results are shown
+    from .model import Spec
+    from .power import PowerAtN, SampleSize
+    from .power.simulate import SimulatedPower
+    from .yamlio import Document
 
 __all__ = ["Finding", "SpecReport", "check_file", "check_files", "Severity", "CAUTION", "RECOMMENDED_FIELDS"]
 
-_ID_RE = re.compile(ID_PATTERN)
+
+@functools.lru_cache(maxsize=None)
+def _id_re() -> re.Pattern[str]:
+    from .model import ID_PATTERN
+
+    return re.compile(ID_PATTERN)
 
 Severity = Literal["error", "warning", "info"]
 
@@ -94,6 +98,22 @@ class SpecReport:
         """Whether git history was read for this spec (so 'no history finding' means clean)."""
         return self.history is not None
 
+    def ensure_document(self) -> None:
+        """Make ``document`` and ``spec`` available (a report rebuilt from the check cache loads them)."""
+
+    @property
+    def valid(self) -> bool:
+        """Whether the file is a spec that passed validation."""
+        return self.spec is not None
+
+    @property
+    def test(self) -> str | None:
+        return self.spec.design.test if self.spec else None
+
+    @property
+    def target_power(self) -> float | None:
+        return self.spec.design.power if self.spec else None
+
     @property
     def planned_per_group(self) -> int | None:
         return self.spec.sample_size.per_group if self.spec else None
@@ -132,12 +152,12 @@ class SpecReport:
         return {
             "id": self.id,
             "path": self.path,
-            "test": self.spec.design.test if self.spec else None,
+            "test": self.test,
             "required_per_group": self.required_per_group,
             "analysable_per_group": self.analysable_per_group,
             "planned_per_group": self.planned_per_group,
             "achieved_power": self.achieved_power,
-            "target_power": self.spec.design.power if self.spec else None,
+            "target_power": self.target_power,
             "simulated_power": self.simulated.to_dict() if self.simulated else None,
             **({"sequential": self.sequential.to_dict()} if self.sequential is not None else {}),
             **({"assurance": self.assurance.to_dict()} if self.assurance is not None else {}),
@@ -161,15 +181,22 @@ def _invalid(report: SpecReport, error: InvalidSpec) -> None:
         report.source_lines = [printable(line) for line in error.source_lines]
 
 
-def check_file(spec_file: SpecFile, config: RegistryConfig | None = None, executor: Any = None) -> SpecReport:
-    """Load, validate and size one spec file. Never raises for a bad file: it becomes findings."""
+def check_file(spec_file: SpecFile, config: RegistryConfig | None = None, executor: Any = None,
+               raw: bytes | None = None) -> SpecReport:
+    """Load, validate and size one spec file. Never raises for a bad file: it becomes findings.
+
+    ``raw``: the file's bytes when the caller has read them already (the check cache hashes them)."""
+    from .validation import validate_document
+    from .yamlio import load_bytes_fast, load_file
+
     config = config or RegistryConfig()
     report = SpecReport(path=spec_file.display)
     if spec_file.refusal:
         report.add("invalid", "error", "", spec_file.refusal)
         return report
     try:
-        report.document = load_file(spec_file.path, spec_file.display)
+        report.document = (load_file(spec_file.path, spec_file.display) if raw is None
+                           else load_bytes_fast(raw, spec_file.display))
     except InvalidSpec as error:
         _invalid(report, error)
         return report
@@ -177,7 +204,7 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None, execut
     if not_a_spec(data):
         report.add("not-a-spec", "info", "", "YAML with no spec field (no id, no design), so not a spec; skipped")
         return report
-    if isinstance(data.get("id"), str) and _ID_RE.fullmatch(data["id"]):
+    if isinstance(data.get("id"), str) and _id_re().fullmatch(data["id"]):
         report.id = data["id"]  # shown beside the errors; an unchecked id could carry markup
     try:
         report.spec = validate_document(report.document)
@@ -216,8 +243,12 @@ def check_file(spec_file: SpecFile, config: RegistryConfig | None = None, execut
 
 def _size(report: SpecReport, spec: Spec, config: RegistryConfig, root: Path | None = None,
           executor: Any = None) -> None:
-    design = spec.design
+    from .power import EventsOnly, InfeasibleDesign, power_at, solve_sample_size
+    from .power.results import power_text
+    from .power.simulate import InvalidSimulation
     from .power.verify import needs_verification
+
+    design = spec.design
 
     verify = needs_verification(design)
     try:
@@ -335,6 +366,7 @@ def _analysable_note(analysable: int, attrition: float) -> str:
 def _simulation(report: SpecReport, spec: Spec) -> None:
     """Run ``design.simulation`` at the planned analysable n and compare it with the exact power."""
     from .power.verify import formula_method
+    from .power.simulate import InvalidSimulation, simulate_plan
 
     design = spec.design
     if design.simulation is None or report.at_planned is None:
@@ -381,6 +413,8 @@ def _pilot(report: SpecReport, spec: Spec, spec_file: SpecFile) -> None:
     source = spec.design.pilot
     if source is None:
         return
+    from .pilot import InvalidPilot, PilotMissing, pilot_root, read_pilot
+
     path = spec_file.path.parent / source.file
     shown = (Path(spec_file.display).parent / source.file).as_posix()
     loc = ("design", "pilot", "file")
@@ -424,6 +458,8 @@ def _pilot(report: SpecReport, spec: Spec, spec_file: SpecFile) -> None:
 
 
 def _needed_with(spec: Spec, sd: float) -> str:
+    from .power import InfeasibleDesign, solve_sample_size
+
     design = spec.design
     effect = design.effect.model_copy(update={"sd": sd})
     try:
@@ -464,10 +500,10 @@ def _template_texts(test: str) -> tuple[tuple[tuple[Any, ...], str], ...]:
     from datetime import date as _date
 
     from .commands.new import template
-    from .yamlio import load_bytes
+    from .yamlio import load_bytes_fast
 
-    data = load_bytes(template(_ID_SENTINEL, test, None, "schema.json", _date(2000, 1, 1)).encode("utf-8"),
-                      "template").data
+    data = load_bytes_fast(template(_ID_SENTINEL, test, None, "schema.json", _date(2000, 1, 1)).encode("utf-8"),
+                           "template").data
     out: list[tuple[tuple[Any, ...], str]] = []
 
     def walk(value: Any, loc: tuple[Any, ...]) -> None:
@@ -508,20 +544,23 @@ def _template_text(report: SpecReport, spec: Spec) -> None:
 
 def not_a_spec(data: Any) -> bool:
     """A YAML mapping with keys, none of them a spec field (an environment or CI file, say)."""
+    from .model import Spec
+
     return isinstance(data, dict) and bool(data) and not any(key in Spec.model_fields for key in data)
 
 
-def check_registry(files: list[SpecFile], config_for: Any = None, executor: Any = None
+def check_registry(files: list[SpecFile], config_for: Any = None, executor: Any = None, cache: Any = None
                    ) -> tuple[list[SpecFile], list[SpecReport], list[str]]:
     """Check the specs among ``files``: (files, reports, skipped) with files and reports aligned.
 
     Files a registry's ``include``/``exclude`` leave out are not read; YAML files that are plainly
     not specs (:func:`not_a_spec`) are set aside and their paths returned in ``skipped``. A file
-    named on the command line is always checked.
+    named on the command line is always checked. ``cache``: a :class:`registry.checkcache.CheckCache`
+    whose results are used for files it holds unchanged (and which keeps the rest).
     """
     if config_for is not None:
         files = [f for f in files if f.named or f.refusal or config_for(f).selects(f.path)]
-    reports = check_files(files, config_for, executor)
+    reports = check_files(files, config_for, executor, cache)
     kept_files, kept, skipped = [], [], []
     for spec_file, report in zip(files, reports):
         if [x.kind for x in report.findings] == ["not-a-spec"]:
@@ -543,17 +582,27 @@ def skipped_line(skipped: list[str]) -> str:
             ".prespec.yaml to say so")
 
 
-def check_files(files: list[SpecFile], config_for: Any = None, executor: Any = None) -> list[SpecReport]:
+def check_files(files: list[SpecFile], config_for: Any = None, executor: Any = None, cache: Any = None
+                ) -> list[SpecReport]:
     """Check every file, then the registry-wide rules (unique ids). ``executor`` (a
-    ``concurrent.futures.Executor``) carries the simulations of simulation-verified sizes."""
+    ``concurrent.futures.Executor``) carries the simulations of simulation-verified sizes; ``cache``
+    (a :class:`registry.checkcache.CheckCache`) answers for files it holds unchanged."""
     reports = []
     for spec_file in files:
         config = config_for(spec_file) if config_for else RegistryConfig()
-        reports.append(check_file(spec_file, config, executor))
+        if cache is None:
+            reports.append(check_file(spec_file, config, executor))
+            continue
+        found, raw = cache.lookup(spec_file, config)
+        if found is None:
+            found = check_file(spec_file, config, executor, raw)
+            if raw is not None:
+                cache.store(spec_file, config, raw, found)
+        reports.append(found)
     by_id: dict[str, list[SpecReport]] = defaultdict(list)
     for report in reports:
-        if report.spec is not None:
-            by_id[report.spec.id].append(report)
+        if report.valid and report.id is not None:
+            by_id[report.id].append(report)
     for spec_id, same in by_id.items():
         if len(same) > 1:
             for report in same:

@@ -185,16 +185,22 @@ def config_loader(errors: list[str], oversize_margin: float | None = None) -> Ca
     read once; a broken config adds its problems to ``errors`` and the defaults apply.
     ``oversize_margin`` (a command-line value) overrides every registry's own."""
     cache: dict[Path | None, RegistryConfig] = {}
+    by_root: dict[Path, RegistryConfig] = {}
 
     def config_for(spec_file: SpecFile) -> RegistryConfig:
+        if spec_file.root in by_root:  # every file of a registry shares its root: one search per registry
+            return by_root[spec_file.root]
         where = find_config(spec_file.root)
         if where not in cache:
             try:
-                cache[where] = load_config(where)
+                config = load_config(where)
             except InvalidSpec as error:
                 errors.append(str(error))
-                cache[where] = RegistryConfig()
-        config = cache[where]
-        return config if oversize_margin is None else config.model_copy(update={"oversize_margin": oversize_margin})
+                config = RegistryConfig()
+            if oversize_margin is not None:
+                config = config.model_copy(update={"oversize_margin": oversize_margin})
+            cache[where] = config
+        by_root[spec_file.root] = cache[where]
+        return cache[where]
 
     return config_for

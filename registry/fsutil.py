@@ -71,11 +71,12 @@ def _sync_folder(folder: Path) -> None:
         os.close(fd)
 
 
-def write_atomic(path: Path | str, text: str | bytes, *, overwrite: bool = True) -> Path:
+def write_atomic(path: Path | str, text: str | bytes, *, overwrite: bool = True, durable: bool = True) -> Path:
     """Write ``text`` to ``path`` through a temporary file and a rename, so readers never see half a file.
 
     ``overwrite=False`` refuses (``WriteRefused``) when anything, even a dangling symbolic link,
-    already has the name.
+    already has the name. ``durable=False`` skips flushing the file and its folder to disk (a cache
+    entry lost in a crash is only recomputed; the rename still keeps readers from half a file).
     """
     path = Path(path)
     if not overwrite and (path.exists() or path.is_symlink()):
@@ -95,13 +96,15 @@ def write_atomic(path: Path | str, text: str | bytes, *, overwrite: bool = True)
               os.fdopen(fd, "w", encoding="utf-8", newline="\n")) as handle:
             handle.write(text)
             handle.flush()
-            os.fsync(handle.fileno())
+            if durable:
+                os.fsync(handle.fileno())
         os.chmod(tmp, mode)
         if overwrite:
             os.replace(tmp, path)
         else:
             _place_new(tmp, path)
-        _sync_folder(path.parent)
+        if durable:
+            _sync_folder(path.parent)
     except BaseException:
         if os.path.lexists(tmp):
             os.unlink(tmp)

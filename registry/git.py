@@ -267,6 +267,24 @@ class Repository:
         """Whether HEAD names a commit directly rather than a branch (a detached HEAD)."""
         return self._repo.head.is_detached
 
+    def state(self) -> str:
+        """A digest of everything the history prespec reads depends on: HEAD (commit and branch),
+        the tags under ``refs/tags/prespec`` and the ``refs/replace`` refs (names and object ids),
+        and the repository's shallow, graft and config files. Equal digests, equal history."""
+        import hashlib
+
+        head = self._run("rev-parse", "HEAD", "--symbolic-full-name", "HEAD")  # GitProblem before a first commit
+        refs = self._run("for-each-ref", "--format=%(refname)%00%(objectname)", "refs/tags/prespec", "refs/replace")
+        digest = hashlib.sha256(f"{head}\0{refs}\0".encode("utf-8", "surrogateescape"))
+        git_dir, common = Path(self._repo.git_dir), Path(self._repo.common_dir)
+        for path in (common / "shallow", common / "info" / "grafts", common / "config", git_dir / "config.worktree"):
+            try:
+                digest.update(path.read_bytes())
+            except OSError:
+                digest.update(b"-")
+            digest.update(b"\0")
+        return digest.hexdigest()
+
     def is_shallow(self) -> bool:
         return self._run("rev-parse", "--is-shallow-repository").strip() == "true"
 

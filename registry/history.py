@@ -45,17 +45,19 @@ import json
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import date, datetime, timedelta
-from typing import Any
+from functools import lru_cache
+from typing import TYPE_CHECKING, Any
 
 from pydantic import BaseModel
 
 from .canonical import locked_view
 from .checks import Finding
 from .git import Commit, LogEntry, odd_offset
-from .model import Spec, locked_paths
 from .problems import InvalidSpec
-from .validation import validate_document
 from .yamlio import load_bytes_fast, peek_scalars
+
+if TYPE_CHECKING:  # the model loads when a version is validated, not when cached results are shown
+    from .model import Spec
 
 __all__ = [
     "MISSING",
@@ -92,7 +94,12 @@ MISSING: Any = _Missing()
 #: A YAML mapping with a text ``id`` and one of these keys is taken for a spec.
 SPEC_KEYS = frozenset({"design", "data_collection", "sample_size", "hypotheses"})
 
-_TOP_LOCKED = {name for name, is_locked in locked_paths(Spec).items() if is_locked}
+@lru_cache(maxsize=None)
+def _top_locked() -> frozenset[str]:
+    """The spec's top-level fields that are locked (from the model)."""
+    from .model import Spec, locked_paths
+
+    return frozenset(name for name, is_locked in locked_paths(Spec).items() if is_locked)
 
 #: Clocks of different machines disagree by minutes; a commit is "in the future" beyond this.
 FUTURE_TOLERANCE = timedelta(minutes=10)
@@ -242,6 +249,7 @@ class Snapshot:
             self._validated = True
             data = self.data
             if isinstance(data, dict):
+                from .validation import validate_document
                 from .yamlio import Document
 
                 try:
@@ -265,7 +273,7 @@ class Snapshot:
             locked = locked_view(spec)
         else:
             full = _plain(self.data) if isinstance(self.data, dict) else {}
-            locked = {k: v for k, v in full.items() if k in _TOP_LOCKED}
+            locked = {k: v for k, v in full.items() if k in _top_locked()}
         for extra in extra_locked:  # a registry's own locked fields; an index locks the whole list
             loc = dotted_loc(extra)
             loc = loc[: next((i for i, part in enumerate(loc) if isinstance(part, int)), len(loc))]
@@ -812,8 +820,10 @@ def _same_locked_input(base: Snapshot, new: Snapshot, extra_locked: Sequence[str
     locs = [dotted_loc(path) for path in extra_locked]
     locs = [loc[: next((i for i, part in enumerate(loc) if isinstance(part, int)), len(loc))] for loc in locs]
 
+    top_locked = _top_locked()
+
     def canonical(data: dict[str, Any]) -> str:  # an index in a registry's locked field locks the whole list
-        top = {key: _plain(value) for key, value in data.items() if key in _TOP_LOCKED}
+        top = {key: _plain(value) for key, value in data.items() if key in top_locked}
         extra = [[] if (value := _get(data, loc)) is MISSING else [_plain(value)] for loc in locs]
         return json.dumps([top, extra], sort_keys=True, ensure_ascii=False, default=str)
 

@@ -34,8 +34,6 @@ import statistics
 from dataclasses import dataclass
 from pathlib import Path
 
-from scipy.special import chdtri
-
 from .hints import name_hint
 from .problems import escaped
 
@@ -93,6 +91,8 @@ def sd_upper_limit(sd: float, n: int, confidence: float = 0.8) -> float:
         raise InvalidPilot(f"an SD needs at least 2 values; got {n}")
     if not 0 < confidence < 1:
         raise InvalidPilot(f"confidence must be in (0, 1); got {confidence!r}")
+    from scipy.special import chdtri  # here, not at import: reading a file's hash needs no scipy
+
     return sd * math.sqrt((n - 1) / chdtri(n - 1, confidence))
 
 

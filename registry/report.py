@@ -51,30 +51,53 @@ def _n(value: int | None) -> str:
     return "-" if value is None else f"{value:,}"
 
 
+_COLUMNS = (("spec", "left"), ("design", "left"), ("planned", "right"), ("needed", "right"), ("power", "right"),
+            ("target", "right"), ("verdict", "left"))
+
+
 def print_table(out: Console, reports: list[SpecReport]) -> None:
-    table = Table(title=None, show_edge=False, header_style="bold", pad_edge=False)
-    table.add_column("spec")
-    table.add_column("design")
-    table.add_column("planned", justify="right")
-    table.add_column("needed", justify="right")
-    table.add_column("power", justify="right")
-    table.add_column("target", justify="right")
-    table.add_column("verdict")
+    rows = []
     for report in reports:
-        spec = report.spec
         power = "-" if report.achieved_power is None else f"{report.achieved_power:.3f}"
-        target = "-" if spec is None else f"{spec.design.power:g}"
-        verdict = report.verdict
-        table.add_row(
-            plain(report.id or report.path),  # a file name is never read as markup
-            spec.design.test if spec else "-",
-            _n(report.planned_per_group),
-            _n(report.required_per_group),
-            power,
-            target,
-            Text(verdict, style=VERDICT_STYLES.get(verdict, "bold red")),
-        )
+        target = "-" if report.target_power is None else f"{report.target_power:g}"
+        rows.append((plain_text(report.id or report.path), report.test or "-", _n(report.planned_per_group),
+                     _n(report.required_per_group), power, target, report.verdict))
+    if _print_plain_table(out, rows):
+        return
+    table = Table(title=None, show_edge=False, header_style="bold", pad_edge=False)
+    for name, justify in _COLUMNS:
+        table.add_column(name, justify=justify)  # type: ignore[arg-type]
+    for *cells, verdict in rows:
+        table.add_row(Text(cells[0]), *cells[1:], Text(verdict, style=VERDICT_STYLES.get(verdict, "bold red")))
     out.print(table)
+
+
+def _print_plain_table(out: Console, rows: list[tuple[str, ...]]) -> bool:
+    """Write the table as rich lays it out (``tests/test_report.py`` compares them), without rich's
+    per-cell rendering, when that layout is plain: no terminal and no colour, ASCII cells, and a
+    cells with no space at either end, and a table that fits the width so nothing wraps. False
+    (nothing written) otherwise."""
+    if out.is_terminal or out.color_system is not None or out.record:
+        return False
+    header = tuple(name for name, _ in _COLUMNS)
+    widths = [len(name) for name in header]
+    for row in rows:
+        for index, cell in enumerate(row):
+            if not (cell.isascii() and cell.isprintable()) or cell != cell.strip():
+                return False  # wide or unusual characters, or edge spaces rich trims: rich lays it out
+            widths[index] = max(widths[index], len(cell))
+    if sum(widths) + 3 * (len(widths) - 1) > out.width:
+        return False
+
+    def line(cells: tuple[str, ...], bar: str) -> str:
+        parts = [cell.rjust(width) if justify == "right" else cell.ljust(width)
+                 for cell, width, (_, justify) in zip(cells, widths, _COLUMNS)]
+        return f" {bar} ".join(parts).rstrip(" ")
+
+    last = len(widths) - 1
+    rule = "╇".join("━" * (width + (1 if index in (0, last) else 2)) for index, width in enumerate(widths))
+    out.file.write("\n".join([line(header, "┃"), rule, *(line(row, "│") for row in rows)]) + "\n")
+    return True
 
 
 def print_findings(out: Console, reports: list[SpecReport], *, show_info: bool = True) -> None:

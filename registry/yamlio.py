@@ -35,6 +35,7 @@ from ruamel.yaml.tag import Tag
 from .problems import NO_VALUE, InvalidSpec, Problem
 
 __all__ = [
+    "read_spec_bytes",
     "load_bytes_fast",
     "peek_scalars",
     "FAST_LOADER",
@@ -405,6 +406,12 @@ def _unreadable(shown: str, exc: OSError) -> InvalidSpec:
 def load_file(path: str | Path, display: str | None = None) -> Document:
     """Read and parse a spec file; unreadable, special and oversized files become an :class:`InvalidSpec` too."""
     shown = display or str(path)
+    return load_bytes_fast(read_spec_bytes(path, shown), shown)
+
+
+def read_spec_bytes(path: str | Path, shown: str) -> bytes:
+    """A spec file's bytes, read the way :func:`load_file` reads them (:class:`InvalidSpec` for a folder,
+    a device, pipe or socket, an oversized or unreadable file)."""
     try:
         # O_NONBLOCK: opening a FIFO named *.yaml must not hang; it is refused below as not a regular file.
         fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_BINARY", 0))
@@ -425,7 +432,7 @@ def load_file(path: str | Path, display: str | None = None) -> Document:
         raise _unreadable(shown, exc) from None
     finally:
         os.close(fd)
-    return load_bytes_fast(raw, shown)
+    return raw
 
 
 def _parser() -> YAML:

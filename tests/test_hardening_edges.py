@@ -96,7 +96,7 @@ def test_a_file_name_given_twice_in_one_render_is_refused_not_replaced():
     from registry.commands.render import _add_files
 
     files = {"a.md": "first"}
-    with pytest.raises(RuntimeError, match="a.md"):
+    with pytest.raises(ValueError, match="a.md"):  # WriteRefused
         _add_files(files, {"a.md": "second", "b.md": "x"}, "the summary of 'a'")
     assert files == {"a.md": "first"}
 

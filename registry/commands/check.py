@@ -27,18 +27,22 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--oversize-margin", type=float, default=None, metavar="FRACTION",
                         help="flag a design as oversized above required x (1 + FRACTION) "
                         "(default 0.25, or the registry's .prespec.yaml)")
+    parser.add_argument("--no-cache", action="store_true",
+                        help="neither use nor keep the results of earlier runs (kept in the repository's "
+                        ".git/prespec/check-cache, or the user cache folder outside git)")
     parser.add_argument("--workers", type=int, default=1, metavar="N",
                         help="run the simulations of simulation-verified sizes in N processes (default 1)")
 
 
 def run(args: argparse.Namespace) -> int:
     return check(args.paths or ["."], as_json=args.json, oversize_margin=args.oversize_margin,
-                 history=not args.no_history, workers=args.workers)
+                 history=not args.no_history, workers=args.workers, cache=not args.no_cache)
 
 
 def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | None = None,
-          history: bool = True, workers: int = 1) -> int:
-    """Check every spec under ``paths``; 0 when no error finding, 1 otherwise."""
+          history: bool = True, workers: int = 1, cache: bool = True) -> int:
+    """Check every spec under ``paths``; 0 when no error finding, 1 otherwise. ``cache``: reuse and keep
+    results of earlier runs for what has not changed (:mod:`registry.checkcache`)."""
     from ..audit import add_history
     from ..checks import CAUTION, check_registry, skipped_line
     from ..config import config_loader
@@ -52,14 +56,19 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
     config_errors: list[str] = []
     config_for = config_loader(config_errors, oversize_margin)
     reports: list[SpecReport]
+    results = None
+    if cache:
+        from ..checkcache import CheckCache
+
+        results = CheckCache()
     if workers > 1:
         from concurrent.futures import ProcessPoolExecutor
 
         with ProcessPoolExecutor(workers) as pool:
-            files, reports, skipped = check_registry(files, config_for, pool)
+            files, reports, skipped = check_registry(files, config_for, pool, results)
     else:
-        files, reports, skipped = check_registry(files, config_for)
-    status = add_history(reports, files, paths, config_for) if history else None
+        files, reports, skipped = check_registry(files, config_for, cache=results)
+    status = add_history(reports, files, paths, config_for, cache=results) if history else None
     failed = any(r.has_errors for r in reports) or bool(config_errors) or bool(status and status.problems)
     if as_json:
         extra: dict[str, object] = {"config_errors": config_errors} if config_errors else {}

@@ -8,7 +8,7 @@ import os
 import sys
 from pathlib import Path
 
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any, Iterator
 
 from ..discovery import UsageError, discover
 from ..hints import id_hint
@@ -117,18 +117,21 @@ def _targets(out: Path, names: list[str]) -> list[Path]:
 
 
 def _add_files(files: dict[str, str], new: dict[str, str], owner: str) -> None:
-    """Add ``new`` to the files to write; a name already taken is refused, never silently replaced."""
+    """Add ``new`` to the files of this render; a name already taken is refused (WriteRefused), never
+    silently replaced."""
     taken = sorted(files.keys() & new.keys())
     if taken:
-        raise RuntimeError(f"{owner} would be written as {', '.join(taken)}, which another file of this render "
-                           "already is; nothing was written")
+        raise WriteRefused(f"{owner} would be written as {', '.join(taken)}, which another file of this render "
+                           "already is")
     files.update(new)
 
 
-def _write(out: Path, files: dict[str, str]) -> list[Path]:
+def _write(out: Path, files: dict[str, str], *, durable: bool = True) -> list[Path]:
+    """Write ``files`` into ``out``, each through a temporary file and a rename; ``durable=False``
+    skips flushing each to disk (the summaries of --all: regenerable, and thousands of them)."""
     targets = _targets(out, list(files))
     for target, text in zip(targets, files.values()):
-        write_atomic(target, text)
+        write_atomic(target, text, durable=durable)
     return targets
 
 
@@ -136,9 +139,11 @@ def _write(out: Path, files: dict[str, str]) -> list[Path]:
 POOL_FROM = 12
 
 
-def _summaries(jobs: list[tuple[SpecReport, Path]], rendered_at: datetime, index_link: bool) -> list[Summary]:
-    """Every job's summary, in order; in a pool of forked worker processes when there are many and
-    more than one core (where forking is unavailable or the pool fails, one after the other)."""
+def _summaries(jobs: list[tuple[SpecReport, Path]], rendered_at: datetime, index_link: bool) -> Iterator[Summary]:
+    """Every job's summary, in order, each as soon as it and those before it are built; in a pool of
+    forked worker processes when there are many and more than one core (where forking is unavailable
+    or the pool cannot start, one after the other). An interrupt stops the workers without waiting
+    for the summaries not yet built."""
     import multiprocessing
 
     from ..summary import build_summary
@@ -151,14 +156,32 @@ def _summaries(jobs: list[tuple[SpecReport, Path]], rendered_at: datetime, index
 
         _JOBS[:] = jobs  # forked workers inherit the jobs: only their numbers and the summaries are sent
         build = partial(_build_summary, rendered_at=rendered_at, index_link=index_link)
+        done = 0
         try:
-            with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork")) as pool:
-                return list(pool.map(build, range(len(jobs)), chunksize=max(1, len(jobs) // (4 * workers))))
-        except (BrokenProcessPool, OSError):
-            pass  # e.g. no shared memory for the pool's queues: build them here instead
-        finally:
-            _JOBS.clear()
-    return [build_summary(report, path, rendered_at, index_link=index_link) for report, path in jobs]
+            pool = ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork"),
+                                       initializer=_ignore_interrupts)
+        except OSError:
+            pool = None  # e.g. no shared memory for the pool's queues: build them here instead
+        if pool is not None:
+            try:
+                for summary in pool.map(build, range(len(jobs)), chunksize=max(1, min(8, len(jobs) // (8 * workers)))):
+                    done += 1
+                    yield summary
+            except (BrokenProcessPool, OSError):
+                pass  # the rest are built here
+            finally:
+                pool.shutdown(wait=False, cancel_futures=True)
+                _JOBS.clear()
+        jobs = jobs[done:]
+    for report, path in jobs:
+        yield build_summary(report, path, rendered_at, index_link=index_link)
+
+
+def _ignore_interrupts() -> None:
+    """In a worker: Ctrl-C is the main process's to handle (it stops the pool), never a worker's traceback."""
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
 #: The jobs of the pool running now, read by its forked workers.
@@ -170,6 +193,46 @@ def _build_summary(index: int, *, rendered_at: datetime, index_link: bool) -> Su
 
     report, path = _JOBS[index]
     return build_summary(report, path, rendered_at, index_link=index_link)
+
+
+def _expected_names(report: SpecReport) -> list[str]:
+    """The files a renderable spec's summary is written to (checked before anything is written)."""
+    from ..summary.document import figure_name, page_stem
+
+    assert report.spec is not None
+    spec_id = report.spec.id
+    names = [f"{page_stem(spec_id)}.md", f"{page_stem(spec_id)}.html", figure_name(spec_id)]
+    if report.sequential is not None:
+        from ..summary.sequential import boundary_figure_name
+
+        names.append(boundary_figure_name(spec_id))
+    return names
+
+
+class _Progress:
+    """A progress bar on standard error when it is a terminal (rich, transient); nothing otherwise."""
+
+    def __init__(self, total: int) -> None:
+        self._bar: Any = None
+        if total and getattr(sys.stderr, "isatty", lambda: False)():
+            from rich.console import Console
+            from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+
+            console = Console(file=sys.stderr, markup=False, highlight=False, emoji=False,
+                              no_color=bool(os.environ.get("NO_COLOR")))
+            self._bar = Progress(TextColumn("rendering"), BarColumn(), MofNCompleteColumn(), TimeRemainingColumn(),
+                                 console=console, transient=True)
+            self._task = self._bar.add_task("render", total=total)
+            self._bar.start()
+
+    def advance(self) -> None:
+        if self._bar is not None:
+            self._bar.advance(self._task)
+
+    def close(self) -> None:
+        if self._bar is not None:
+            self._bar.stop()
+            self._bar = None
 
 
 def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = None,
@@ -216,31 +279,58 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
             return 1
         reports = chosen
     files_by_path = {spec_file.display: spec_file for spec_file in spec_files}
-    files: dict[str, str] = {}
     rows: list[IndexRow] = []
     failed = False
     jobs = [(report, files_by_path[report.path].path) for report in reports if _renderable(report)]
-    summaries = iter(_summaries(jobs, rendered_at, all_specs))
-    for report in reports:
-        if not _renderable(report):
-            print(plain_text(_why_not(report)), file=sys.stderr)
-            rows.append(IndexRow(report, None))
-            failed = True
-            continue
-        summary = next(summaries)
-        _add_files(files, summary.files(), f"the summary of {summary.spec_id!r}")
-        rows.append(IndexRow(report, summary.page))
-    if all_specs:
-        index_md, index_html = build_index(rows, rendered_at)
-        _add_files(files, {SITE_SCRIPT_NAME: SITE_SCRIPT, "index.md": index_md, "index.html": index_html},
-                   "the registry index")
-    if out is None:  # nothing is written: the registry stays as it is
-        return _print_unwritten(rows, files, as_json, failed)
+    index_names = [SITE_SCRIPT_NAME, "index.md", "index.html"] if all_specs else []
+    written: list[Path] = []
+    if out is not None:
+        try:  # every file this run writes may be written, or nothing is
+            _targets(folder, [name for report, _ in jobs for name in _expected_names(report)] + index_names)
+        except (WriteRefused, OSError) as error:
+            print(plain_text(f"prespec: error: {error}"), file=sys.stderr)
+            return 1
+    files: dict[str, str] = {}  # without --out: the one spec's files, printed instead of written
+    claimed: dict[str, str] = dict.fromkeys(index_names, "")  # every name this run writes, once
+    try:  # two files of this run with one name: refused before anything is written
+        for report, _ in jobs:
+            _add_files(claimed, dict.fromkeys(_expected_names(report), ""), f"the summary of {report.spec.id!r}")
+    except WriteRefused as error:
+        print(plain_text(f"prespec: error: {error}; nothing was written"), file=sys.stderr)
+        return 1
+    summaries = _summaries(jobs, rendered_at, all_specs)
+    progress = _Progress(len(jobs) if all_specs and out is not None else 0)
     try:
-        written = _write(folder, files)
+        for report in reports:
+            if not _renderable(report):
+                print(plain_text(_why_not(report)), file=sys.stderr)
+                rows.append(IndexRow(report, None))
+                failed = True
+                continue
+            summary = next(summaries)
+            rows.append(IndexRow(report, summary.page))
+            if out is None:
+                files.update(summary.files())
+                continue
+            # each summary as it is done: an interrupt keeps them (the index, written last, is flushed to disk)
+            written += _write(folder, summary.files(), durable=not all_specs)
+            progress.advance()
+        progress.close()
+        if all_specs:  # the index last, once every page it links to is written
+            index_md, index_html = build_index(rows, rendered_at)
+            index = {SITE_SCRIPT_NAME: SITE_SCRIPT, "index.md": index_md, "index.html": index_html}
+            if out is None:
+                files.update(index)
+            else:
+                written += _write(folder, index)
     except (WriteRefused, OSError) as error:
         print(plain_text(f"prespec: error: {error}"), file=sys.stderr)
         return 1
+    finally:
+        progress.close()
+        summaries.close()
+    if out is None:  # nothing is written: the registry stays as it is
+        return _print_unwritten(rows, files, as_json, failed)
     if as_json:
         _print_json(rows, written, folder)
         return 1 if failed or config_errors else 0
