@@ -7,18 +7,26 @@ It lives in the registry's git folder (``.git/prespec/size-cache/``) when the re
 git repository, else in the user's cache folder (``platformdirs``' rules). Entries are written through
 a temporary file and a rename, so concurrent runs never see half an entry; an entry that cannot
 be read, or whose stored key differs, is treated as absent and rewritten.
+
+A cache inside a repository travels with it (a copied folder, a tarball of the registry), so an
+entry is trusted only if it carries a seal (HMAC-SHA256) made with a secret key of the user who
+runs prespec, kept in the user's cache folder: an entry planted by whoever made the repository,
+whose key they do not have, is absent, and the result is computed afresh. Without a user cache
+folder to hold the key, nothing is cached.
 """
 
 from __future__ import annotations
 
 import hashlib
+import hmac
 import json
+from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
 from . import __version__
 
-__all__ = ["SizeCache", "cache_key", "default_cache_dir"]
+__all__ = ["SizeCache", "cache_key", "default_cache_dir", "seal"]
 
 _FOLDER = "size-cache"
 
@@ -88,6 +96,49 @@ def _user_cache_dir() -> Path | None:
     return home / ".cache" / "prespec" if home else None
 
 
+_KEY_FILE = "entry-key"  # in the user cache folder: 32 random bytes, readable by the user only
+
+
+@lru_cache(maxsize=1)
+def _secret() -> bytes | None:
+    """This user's key for sealing entries, made on first use; None when it cannot be kept."""
+    import os
+    import stat
+
+    folder = _user_cache_dir()
+    if folder is None:
+        return None
+    path = folder / _KEY_FILE
+    for _ in range(2):
+        try:
+            data = _read_regular(path)
+        except FileNotFoundError:
+            from .fsutil import WriteRefused, write_atomic
+
+            try:
+                write_atomic(path, os.urandom(32), overwrite=False, private=True)
+            except WriteRefused:  # another run made it first: read theirs
+                continue
+            except OSError:
+                return None
+            continue
+        except OSError:
+            return None
+        if len(data) == 32 and (os.name != "posix" or stat.S_IMODE(path.stat().st_mode) & 0o077 == 0):
+            return data
+        return None  # a key others may read (or not ours): trust no entry
+    return None
+
+
+def seal(key: str, value: dict[str, Any]) -> str | None:
+    """The seal of an entry: HMAC-SHA256 under this user's key of the key and canonical value."""
+    secret = _secret()
+    if secret is None:
+        return None
+    text = json.dumps({"key": key, "value": value}, sort_keys=True, separators=(",", ":"), ensure_ascii=True)
+    return hmac.new(secret, text.encode("ascii"), hashlib.sha256).hexdigest()
+
+
 class SizeCache:
     """Get and put JSON entries by key in ``folder`` (None: a cache that remembers nothing)."""
 
@@ -104,6 +155,9 @@ class SizeCache:
             return None
         if not isinstance(data, dict) or data.get("key") != key or not isinstance(data.get("value"), dict):
             return None  # damaged or foreign: rebuilt by the next put
+        expected = seal(key, data["value"])
+        if expected is None or not isinstance(data.get("seal"), str) or not hmac.compare_digest(expected, data["seal"]):
+            return None  # not sealed by this user: planted, copied or altered
         return data["value"]
 
     def put(self, key: str, value: dict[str, Any]) -> None:
@@ -111,8 +165,12 @@ class SizeCache:
             return
         from .fsutil import write_atomic
 
+        sealed = seal(key, value)
+        if sealed is None:  # no key to seal with: an unsealed entry would never be read back
+            return
         try:
-            write_atomic(self.folder / f"{key}.json", json.dumps({"key": key, "value": value}, sort_keys=True),
+            write_atomic(self.folder / f"{key}.json",
+                         json.dumps({"key": key, "value": value, "seal": sealed}, sort_keys=True),
                          durable=self.durable)
         except (OSError, ValueError):  # ValueError: fsutil.WriteRefused, e.g. a link where the entry goes
             pass  # a read-only registry, a full disk or a planted link only costs speed

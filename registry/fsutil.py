@@ -71,12 +71,14 @@ def _sync_folder(folder: Path) -> None:
         os.close(fd)
 
 
-def write_atomic(path: Path | str, text: str | bytes, *, overwrite: bool = True, durable: bool = True) -> Path:
+def write_atomic(path: Path | str, text: str | bytes, *, overwrite: bool = True, durable: bool = True,
+                 private: bool = False) -> Path:
     """Write ``text`` to ``path`` through a temporary file and a rename, so readers never see half a file.
 
     ``overwrite=False`` refuses (``WriteRefused``) when anything, even a dangling symbolic link,
     already has the name. ``durable=False`` skips flushing the file and its folder to disk (a cache
     entry lost in a crash is only recomputed; the rename still keeps readers from half a file).
+    ``private=True`` gives the file mode 0600 (a key only its owner may read).
     """
     path = Path(path)
     if not overwrite and (path.exists() or path.is_symlink()):
@@ -89,7 +91,7 @@ def write_atomic(path: Path | str, text: str | bytes, *, overwrite: bool = True,
     if path.exists() and not path.is_file():
         raise WriteRefused(f"{path} is not a regular file (a device, FIFO or socket); prespec will not replace it")
     path.parent.mkdir(parents=True, exist_ok=True)
-    mode = _mode_for(path, overwrite)
+    mode = 0o600 if private else _mode_for(path, overwrite)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
         with (os.fdopen(fd, "wb") if isinstance(text, bytes) else

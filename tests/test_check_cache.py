@@ -75,9 +75,12 @@ def test_a_cached_run_prints_what_a_cold_run_prints(run, lab):
 def test_the_cached_results_are_the_ones_used_and_no_cache_skips_them(run, lab):
     run("check", lab.registry, "--json")
     # Rewrite every stored message: a run that shows them read the cache; --no-cache must not.
-    for path in _entries(lab.root):
-        text = path.read_text(encoding="utf-8")
-        path.write_text(text.replace("more than the", "MORE THAN THE"), encoding="utf-8")
+    from registry.diskcache import seal
+
+    for path in _entries(lab.root):  # altered and sealed again with this user's key, as prespec would
+        entry = json.loads(path.read_text(encoding="utf-8").replace("more than the", "MORE THAN THE"))
+        entry["seal"] = seal(entry["key"], entry["value"])
+        path.write_text(json.dumps(entry), encoding="utf-8")
     assert "MORE THAN THE" in run("check", lab.registry, "--json").out
     fresh = run("check", lab.registry, "--json", "--no-cache")
     assert "MORE THAN THE" not in fresh.out and "more than the" in fresh.out
@@ -253,3 +256,39 @@ def test_a_fifo_or_link_in_the_cache_folder_is_passed_over(run, lab, tmp_path):
     os.symlink(elsewhere, entries[1])  # never written through
     assert run("check", lab.registry, "--json").out == cold
     assert elsewhere.read_text(encoding="utf-8") == "{}"
+
+
+def test_entries_planted_in_a_repository_are_not_trusted(run, lab):
+    # a repository someone else made may carry its own .git/prespec cache, made to hide the drift;
+    # without this user's key its entries cannot be sealed, so they are computed afresh
+    cold = run("check", lab.registry, "--json", "--no-cache").out
+    assert '"drift"' in cold
+    run("check", lab.registry, "--json")
+    for path in _entries(lab.root):
+        entry = json.loads(path.read_text(encoding="utf-8").replace('"drift"', '"amended"'))
+        entry["seal"] = hashlib.sha256(b"someone else's key").hexdigest()
+        path.write_text(json.dumps(entry), encoding="utf-8")
+    assert run("check", lab.registry, "--json").out == cold
+    for path in _entries(lab.root):  # and unsealed entries are no better
+        entry = json.loads(path.read_text(encoding="utf-8").replace('"drift"', '"amended"'))
+        entry.pop("seal")
+        path.write_text(json.dumps(entry), encoding="utf-8")
+    assert run("check", lab.registry, "--json").out == cold
+
+
+def test_the_sealing_key_is_the_users_own(tmp_path, monkeypatch):
+    from registry import diskcache
+
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    diskcache._secret.cache_clear()
+    try:
+        assert diskcache.seal("k", {"a": 1}) is not None
+        key = tmp_path / "cache" / "prespec" / "entry-key"
+        assert len(key.read_bytes()) == 32
+        if os.name == "posix":
+            assert key.stat().st_mode & 0o077 == 0
+            diskcache._secret.cache_clear()
+            key.chmod(0o644)  # a key others can read seals nothing
+            assert diskcache.seal("k", {"a": 1}) is None
+    finally:
+        diskcache._secret.cache_clear()
