@@ -457,8 +457,9 @@ class Family(ABC):
 
     def cluster_power(self, design: DesignBase, clusters: np.ndarray, effect_size: float) -> np.ndarray:
         """Families with :attr:`cluster_means`: power with ``clusters`` clusters in group 1 (vectorized),
-        the analysis run on the cluster means."""
-        raise NotImplementedError(f"{self.name} sizes clustered designs by the design effect")
+        the analysis run on the cluster means. Only called where :attr:`cluster_means` is set; the
+        other families size clustered designs by the design effect and never reach this."""
+        raise TypeError(f"{self.name} has no cluster-means analysis; it sizes clustered designs by the design effect")
 
     def doubts(self, design: DesignBase) -> tuple[str, ...]:
         """Reasons to distrust this design's computed size (check reports them as warnings)."""
