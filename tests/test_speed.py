@@ -58,6 +58,12 @@ def test_checking_t_test_designs_needs_scipy_special_only(tmp_path):
     assert "registry.summary" not in loaded
 
 
+def test_checking_a_repeated_measures_design_needs_no_scipy_stats():
+    # its F-test power and the critical value at the expected epsilon come from scipy.special's ufuncs
+    loaded = _loaded_by(["check", "--no-history", "--no-cache", str(ROOT / "example_registry" / "cast-weekly-weights.yaml")])
+    assert "scipy.stats" not in loaded and "statsmodels" not in loaded
+
+
 def test_subcommand_help_still_lists_every_option(run):
     result = run("size", "--help")
     assert result.status == 0

@@ -53,6 +53,20 @@ def _bartlett_draws(k: int) -> tuple[np.ndarray, np.ndarray]:
 
 
 def expected_epsilon(a: np.ndarray, df: float) -> float:
+    """Memoized :func:`_expected_epsilon` (the size search, the detectable effect and the power at
+    the planned n ask for the same covariance and df many times; the answer depends on nothing else)."""
+    key = (a.shape, a.tobytes(), float(df))
+    if key not in _EPSILON_MEMO:
+        if len(_EPSILON_MEMO) >= 4096:
+            _EPSILON_MEMO.clear()
+        _EPSILON_MEMO[key] = _expected_epsilon(a, df)
+    return _EPSILON_MEMO[key]
+
+
+_EPSILON_MEMO: dict[tuple[tuple[int, ...], bytes, float], float] = {}
+
+
+def _expected_epsilon(a: np.ndarray, df: float) -> float:
     """The mean of the Greenhouse-Geisser estimate ``tr(S)^2 / (k tr(S^2))`` when ``S`` is the
     covariance of the contrasts estimated on ``df`` degrees of freedom (``S ~ Wishart(df, a) / df``),
     from the Bartlett decomposition over fixed draws: the same draws for every df, so the result
@@ -333,9 +347,10 @@ class RepeatedMeasures(Family):
         out = np.empty(n.shape)
         for i, size in np.ndenumerate(n):
             hat = 1.0 if effect.sphericity == "none" else expected_epsilon(a, g * (size - 1))
-            crit = stats.f.isf(design.alpha, hat * df1, hat * df2[i])
+            # scipy.special's ufuncs behind scipy.stats.f.isf / ncf.sf / f.sf, without loading scipy.stats
+            crit = special.fdtri(hat * df1, hat * df2[i], 1 - design.alpha)
             if spherical:  # the statistic is exactly noncentral F; only the critical value is approximate
-                out[i] = stats.ncf.sf(crit, df1, df2[i], lam[i])
+                out[i] = 1 - special.ncfdtr(df1, df2[i], lam[i], crit)
                 continue
             # Box (1954) / Muller & Barton (1989): the numerator is sum_i a_i chi2_h(delta_i^2), matched by
             # its first two moments (Patnaik 1949); the denominator is abar chi2_{eps df2} / (eps df2)
@@ -345,7 +360,7 @@ class RepeatedMeasures(Family):
             var = float(np.sum(weights**2 * (2 * h + 4 * delta2)))
             nu = 2 * mean * mean / var
             abar = float(np.mean(weights))
-            out[i] = stats.f.sf(crit * df1 * abar / mean, nu, eps * df2[i])
+            out[i] = special.fdtrc(nu, eps * df2[i], crit * df1 * abar / mean)
         return out
 
     def _eigen_shares(self, design: DesignBase, es: float) -> tuple[np.ndarray, np.ndarray]:
