@@ -231,3 +231,4 @@ def test_values_near_the_edges_are_printed_as_given(run):
     result = run("size", "two-sample-t", "--d", "0.5", "--alpha", "0.9999999")
     assert result.status == 2 and "alpha (0.9999999)" in result.err
     assert "target power 0.999999999," in run("size", "two-sample-t", "--d", "0.5", "--power", "0.999999999").out
+

@@ -17,6 +17,7 @@ import typing
 from typing import TYPE_CHECKING, Any, Callable
 
 from ..discovery import UsageError
+from ..problems import json_escaped
 
 if TYPE_CHECKING:
     from ..power import EventsOnly, PowerAtN, SampleSize
@@ -475,7 +476,7 @@ def size(test: str, params: dict[str, Any], *, n: int | None = None, as_json: bo
         payload["simulation"] = sim.to_dict() if sim else None
         payload.update(staged)
         payload["caution"] = CAUTION
-        print(json.dumps(payload, indent=2, ensure_ascii=False))
+        print(json_escaped(json.dumps(payload, indent=2, ensure_ascii=False)))
     else:
         _print_human(design, result, sim, staged_rows)
     return 0
@@ -490,9 +491,9 @@ def _print_events(design: DesignBase, answer: EventsOnly, as_json: bool) -> None
     family = design.family
     looks = sequential_events(design, answer.events)
     if as_json:
-        print(json.dumps({"test": family.name, "events": answer.events, "n_per_group": None,
+        print(json_escaped(json.dumps({"test": family.name, "events": answer.events, "n_per_group": None,
                           "method": family.method, "reference": family.reference, "message": answer.message,
-                          "sequential_events": looks, "caution": CAUTION}, indent=2, ensure_ascii=False))
+                          "sequential_events": looks, "caution": CAUTION}, indent=2, ensure_ascii=False)))
         return
     out = console()
     out.print(f"Events needed: {family.title} ({family.name})")
