@@ -220,10 +220,8 @@ def verified_sample_size(
     family = design.family
     if reps * formula.n_total > SIMULATION_BUDGET:
         return dataclasses.replace(formula, notes=(
-            f"not verified by simulation: at the formula's {formula.n_total:,} units, {reps:,} simulated experiments "
-            f"per candidate n exceed prespec's budget of {SIMULATION_BUDGET:,} simulated units; the size is the "
-            f"formula's ({family.method}), whose large-sample error is small at this n (prespec size --simulate "
-            "checks one n)", *formula.notes))
+            _over_budget("not verified by simulation", "size", formula.n_total, reps, family)
+            + " (prespec size --simulate checks one n)", *formula.notes))
     cache = SizeCache(cache_dir)
     key = cache_key("verified-size", {"design": design.model_dump(mode="json"), "reps": reps, "seed": seed,
                                       "distribution": distribution, "algorithm": ALGORITHM})
@@ -285,6 +283,13 @@ def verified_sample_size(
     )
 
 
+def _over_budget(what: str, answer: str, units: int, reps: int, family: Any) -> str:
+    """The note of a result left to the formula because simulating it exceeds :data:`SIMULATION_BUDGET`."""
+    return (f"{what}: {reps:,} simulated experiments of {units:,} units exceed prespec's budget of "
+            f"{SIMULATION_BUDGET:,} simulated units; the {answer} is the formula's ({family.method}), whose "
+            "large-sample error is small at this n")
+
+
 def verified_power_at(
     design: DesignBase,
     n: int,
@@ -312,9 +317,7 @@ def verified_power_at(
     family = design.family
     if reps * formula.n_total > SIMULATION_BUDGET:  # as for the size search: the formula, said so
         return dataclasses.replace(formula, notes=(
-            f"not simulated: {reps:,} simulated experiments of {formula.n_total:,} units exceed prespec's budget of "
-            f"{SIMULATION_BUDGET:,} simulated units; the power is the formula's ({family.method}), whose "
-            "large-sample error is small at this n", *formula.notes))
+            _over_budget("not simulated", "power", formula.n_total, reps, family), *formula.notes))
     sim_distribution = distribution or family.default_distribution(design.as_tested())
     cache = SizeCache(cache_dir)
     key = cache_key("simulated-power", {"design": design.model_dump(mode="json"), "n": n, "reps": reps,
