@@ -9,7 +9,7 @@ from pydantic import field_validator, model_validator
 
 from .base import DesignBase, EffectBase, Family, fraction_validator, locked
 from .binary_tables import EXACT_CELLS, enumeration_cells, exact_power, rejects
-from .two_proportions import cohens_h, proportion_for_h, z_test_tails
+from .two_proportions import cohens_h, proportion_for_h, tails_for, z_test_tails
 
 __all__ = ["FisherExact", "FisherPair"]
 
@@ -116,11 +116,7 @@ class FisherExact(Family):
 
         z = -ndtri(design.alpha / (2 if design.alternative == "two-sided" else 1))
         up, down = z_test_tails(p1, p2, np.array([n1], float), np.array([n2], float), z, True)
-        if design.alternative == "greater":
-            return float(up[0])
-        if design.alternative == "less":
-            return float(down[0])
-        return float(up[0] + down[0])
+        return float(tails_for(up, down, design.alternative)[0])
 
     def approximate_n(self, design: DesignBase, effect_size: float) -> float:
         from scipy.special import ndtri

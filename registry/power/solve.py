@@ -342,10 +342,11 @@ def _settled_in_window(family: Family, design: DesignBase, power_of: Callable[[n
     width = int(max(10, min(500, _SCAN_CELLS / (4 * cost))))
     low = max(family.min_n, crossing - width)
     candidates = np.arange(low, crossing + 3 * width + 1)
-    reached = power_of(candidates) >= design.power
-    failures = candidates[~reached]
+    powers = power_of(candidates)
+    failures = candidates[powers < design.power]
     n = int(failures.max()) + 1 if failures.size else int(low)
-    achieved = float(power_of(np.array([n]))[0])
+    inside = n - low < len(powers)  # past the window only if its last n fell short
+    achieved = float(powers[n - low] if inside else power_of(np.array([n]))[0])
     exact = family.exact_at(design, n)
     note = (f"exact power is not monotone in n: {n} is the smallest n from which every n checked ({low:,} to "
             f"{int(candidates[-1]):,}, around the crossing found by bisection) reaches the target power"

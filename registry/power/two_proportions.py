@@ -37,6 +37,15 @@ def z_test_tails(p1: float, p2: float, n1: np.ndarray, n2: np.ndarray, z: float,
             special.ndtr((-delta - correction - z * sigma0) / sigma1))
 
 
+def tails_for(up: np.ndarray, down: np.ndarray, alternative: str) -> np.ndarray:
+    """The rejection probability of the test's sides from its upward and downward tails."""
+    if alternative == "greater":
+        return up
+    if alternative == "less":
+        return down
+    return up + down
+
+
 def proportion_for_h(p_from: float, h: float) -> float:
     """The proportion at Cohen's ``h`` from ``p_from`` (clipped to [0, 1] beyond the possible range).
 
@@ -189,11 +198,7 @@ class TwoProportions(Family):
             up, down = special.ndtr(shift - z), special.ndtr(-shift - z)
         else:
             up, down = z_test_tails(p1, p2, n1, n2, z, effect.continuity_correction)
-        if design.alternative == "greater":
-            return up
-        if design.alternative == "less":
-            return down
-        return up + down
+        return tails_for(up, down, design.alternative)
 
     def approximate_n(self, design: DesignBase, effect_size: float) -> float:
         effect = design.effect
