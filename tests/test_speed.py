@@ -56,6 +56,7 @@ def test_checking_t_test_designs_needs_scipy_special_only(tmp_path):
     loaded = _loaded_by(["check", "--no-history", str(tmp_path / "lean.yaml")])
     assert "scipy.stats" not in loaded and "statsmodels" not in loaded and "matplotlib" not in loaded
     assert "registry.summary" not in loaded
+    assert "scipy.optimize" not in loaded  # the minimum detectable effect's root comes from registry.power.roots
 
 
 def test_checking_a_repeated_measures_design_needs_no_scipy_stats():

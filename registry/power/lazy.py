@@ -1,6 +1,6 @@
 """scipy submodules that load on first use.
 
-``scipy.stats`` and ``scipy.optimize`` take about a second to import, while ``prespec check``
+``scipy.stats`` and ``scipy.integrate`` take a good part of a second to import, while ``prespec check``
 of t-test designs needs neither (their power is computed with ``scipy.special``). A family
 module writes ``from .lazy import stats`` and uses ``stats.norm.ppf(...)`` as usual; the
 submodule is imported the first time one of its attributes is read.
@@ -17,7 +17,7 @@ from collections.abc import Callable
 from types import ModuleType
 from typing import Any
 
-__all__ = ["stats", "optimize", "integrate"]
+__all__ = ["stats", "integrate"]
 
 
 class _LazyModule:
@@ -41,5 +41,4 @@ class _LazyModule:
 
 
 stats: Any = _LazyModule("scipy.stats", lambda: importlib.import_module("scipy.stats"))
-optimize: Any = _LazyModule("scipy.optimize", lambda: importlib.import_module("scipy.optimize"))
 integrate: Any = _LazyModule("scipy.integrate", lambda: importlib.import_module("scipy.integrate"))

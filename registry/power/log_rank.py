@@ -6,7 +6,8 @@ import math
 
 import numpy as np
 from pydantic import field_validator, model_validator
-from .lazy import optimize, stats  # loaded on first use
+from .lazy import stats  # loaded on first use
+from .roots import brentq
 
 from .base import DesignBase, EffectBase, Family, locked
 from .fields import out_of_range
@@ -269,4 +270,4 @@ class LogRank(Family):
         high = 1.0
         while gap(high) < 0:
             high *= 2
-        return optimize.brentq(gap, 0.0, high, xtol=1e-12)
+        return brentq(gap, 0.0, high, xtol=1e-12)

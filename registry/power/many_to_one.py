@@ -10,7 +10,7 @@ import numpy as np
 from pydantic import model_validator
 from scipy import special
 
-from .lazy import optimize  # loaded on first use
+from .roots import brentq
 
 from .base import DesignBase, EffectBase, Family, InfeasibleDesign, locked
 from .restrictions import require_no_allocation_ratio
@@ -101,7 +101,7 @@ def dunnett_critical(k: int, rho: float, df: float, alpha: float, two_sided: boo
     2.35
     """
     zero = np.zeros(k)
-    return optimize.brentq(lambda c: none_rejected(c, zero, rho, df, two_sided) - (1 - alpha), 0.0, 40.0,
+    return brentq(lambda c: none_rejected(c, zero, rho, df, two_sided) - (1 - alpha), 0.0, 40.0,
                            xtol=1e-10)
 
 

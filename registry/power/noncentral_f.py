@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
-from .lazy import optimize  # loaded on first use
+from .roots import brentq
 
 __all__ = ["f_test_power", "chi_square_power", "required_noncentrality"]
 
@@ -48,5 +48,5 @@ def required_noncentrality(df: float, alpha: float, power: float) -> float:
     >>> round(required_noncentrality(1, 0.05, 0.8), 4)  # (1.959964 + 0.841621)^2
     7.8489
     """
-    return optimize.brentq(lambda lam: float(chi_square_power(lam, df, alpha)) - power, 0.0, 1e4 + 100 * df,
+    return brentq(lambda lam: float(chi_square_power(lam, df, alpha)) - power, 0.0, 1e4 + 100 * df,
                            xtol=1e-10)

@@ -7,7 +7,8 @@ from typing import Literal
 
 import numpy as np
 from pydantic import model_validator
-from .lazy import integrate, optimize, stats  # loaded on first use
+from .lazy import integrate, stats  # loaded on first use
+from .roots import brentq
 
 from .base import EffectBase, locked
 from .mean_difference import _require_difference_or_d
@@ -126,4 +127,4 @@ def superiority_shift(shape: str, p_superiority: float) -> float:
     >>> round(superiority_shift("normal", 0.6381631), 4)  # Phi(0.5 / sqrt(2)) for d = 0.5
     0.5
     """
-    return optimize.brentq(lambda s: _superiority(shape, s) - p_superiority, -20.0, 20.0, xtol=1e-12)
+    return brentq(lambda s: _superiority(shape, s) - p_superiority, -20.0, 20.0, xtol=1e-12)

@@ -38,7 +38,7 @@ from typing import Literal, Sequence
 import numpy as np
 from scipy import special
 
-from .lazy import optimize  # loaded on first use
+from .roots import brentq
 
 __all__ = [
     "SPENDING_FUNCTIONS",
@@ -285,7 +285,7 @@ def _solve_bound(target: float, tail) -> float:
     low, high = -12.0, 40.0
     if tail(low) <= target:
         return low
-    return float(optimize.brentq(lambda b: tail(b) - target, low, high, xtol=1e-13, rtol=1e-14, maxiter=400))
+    return float(brentq(lambda b: tail(b) - target, low, high, xtol=1e-13, rtol=1e-14, maxiter=400))
 
 
 def _solve_lower(target: float, tail, upper: float) -> float:
@@ -295,7 +295,7 @@ def _solve_lower(target: float, tail, upper: float) -> float:
     high = min(upper, 40.0)
     if tail(high) <= target:
         return high
-    return float(optimize.brentq(lambda a: tail(a) - target, -40.0, high, xtol=1e-13, rtol=1e-14, maxiter=400))
+    return float(brentq(lambda a: tail(a) - target, -40.0, high, xtol=1e-13, rtol=1e-14, maxiter=400))
 
 
 def _efficacy_increments(fractions: list[float], level: float, spending: str, rho: float | None) -> np.ndarray:
@@ -444,7 +444,7 @@ def _root(gap, start: float) -> float:
         high *= 1.5
         if high > 100:
             raise InvalidSequential("no maximum information reaches the target power with these boundaries")
-    return float(optimize.brentq(gap, low, high, xtol=1e-11, rtol=1e-13, maxiter=200))
+    return float(brentq(gap, low, high, xtol=1e-11, rtol=1e-13, maxiter=200))
 
 
 def _finish(fractions, alpha, power, two_sided, efficacy, rho, futility, futility_spending, futility_rho,
@@ -492,7 +492,7 @@ def constant_shape_boundaries(fractions: Sequence[float], alpha: float, shape: f
         up, low = crossing_probabilities(fractions, bounds, lows, 0.0)
         return float(up.sum() + (low.sum() if two_sided else 0.0)) - alpha
 
-    c = float(optimize.brentq(level, 0.5, 10.0, xtol=1e-12, rtol=1e-14))
+    c = float(brentq(level, 0.5, 10.0, xtol=1e-12, rtol=1e-14))
     return c, tuple(float(x) for x in c * ts ** (shape - 0.5))
 
 

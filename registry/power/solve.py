@@ -6,7 +6,7 @@ import math
 from typing import Any, Callable
 
 import numpy as np
-from .lazy import optimize  # loaded on first use
+from .roots import brentq
 
 from .base import MAX_N, DesignBase, EventsOnly, Family, InfeasibleDesign
 from .results import PowerAtN, SampleSize
@@ -377,7 +377,7 @@ def _minimum_effect(family: Family, tested: DesignBase, n: int,
         if high > 1e6:
             return None
     low = 0.0
-    return sign * optimize.brentq(gap, low, high, xtol=1e-10, rtol=1e-10)
+    return sign * brentq(gap, low, high, xtol=1e-10, rtol=1e-10)
 
 
 def power_of(design: DesignBase, n: Any, effect_size: float | None = None) -> np.ndarray:
