@@ -17,7 +17,7 @@ from registry.discovery import discover
 from registry.guidelines import GUIDELINES, coverage
 from registry.power.base import EffectBase, Family
 from registry.summary import build_summary, render_time
-from registry.summary.numbers import has_spread, sensitivity
+from registry.summary.numbers import Curve, has_spread, sensitivity
 from registry.summary.provenance import iso_utc
 
 from .conftest import EXAMPLES
@@ -314,6 +314,25 @@ def test_same_epoch_gives_byte_identical_output(run, tmp_path, epoch):
         assert (first / name).read_bytes() == (second / name).read_bytes(), name
     assert "2027-01-15T08:00:00Z" in (first / "fibre-butyrate.md").read_text()  # 1.8e9 s after 1970-01-01 UTC
 
+
+
+def test_a_figure_drawn_after_others_is_the_one_a_fresh_process_draws(monkeypatch):
+    # Each process draws every power curve on one reused figure: what an earlier curve set (a
+    # planned line, a point, a formula legend, wider ticks) must never show in a later one.
+    from registry.summary import figure
+
+    def curve(top: int) -> Curve:
+        ns = tuple(range(2, top, max(1, top // 128)))
+        return Curve(ns, tuple(1 - math.exp(-3 * n / top) for n in ns))
+
+    small, large = curve(130), curve(12_000)
+    kwargs = {"target": 0.8, "required": small.n[60], "planned": None, "unit": "per group", "figure_id": "f"}
+    monkeypatch.setattr(figure, "_CANVAS", None)
+    fresh = figure.power_figure(small, **kwargs).svg
+    figure.power_figure(large, target=0.9, required=large.n[60], planned=large.n[60], unit="clusters",
+                        figure_id="g", formula="a formula")
+    assert figure.power_figure(small, **kwargs).svg == fresh
+    assert "planned n" not in fresh and "formula" not in fresh
 
 def test_bad_source_date_epoch_is_a_usage_error(run, tmp_path, monkeypatch):
     monkeypatch.setenv("SOURCE_DATE_EPOCH", "yesterday")

@@ -77,6 +77,32 @@ def test_the_pool_writes_what_one_process_writes(run, tmp_path, epoch, monkeypat
     assert len(_files(pooled)) == 3 * count + 3  # + index.md, index.html, site.js
 
 
+@pytest.mark.parametrize("stage", ["summary_figure", "build_summary"])
+def test_a_worker_that_dies_leaves_the_rest_to_this_process(run, tmp_path, epoch, monkeypatch, stage):
+    # the figures are drawn in workers while the history is read, then the pages are built in workers:
+    # a worker lost at either stage (killed, out of memory) costs time, never a page or a byte
+    import os
+
+    count = render_command.POOL_FROM + 1
+    folder = _registry(tmp_path, count)
+    alone = tmp_path / "alone"
+    monkeypatch.setattr(render_command, "POOL_FROM", 10**6)
+    assert run("render", "--all", folder, "--out", alone, "--no-history").status == 0
+    monkeypatch.setattr(render_command, "POOL_FROM", count)
+    monkeypatch.setattr(render_command.os, "cpu_count", lambda: 2)
+    parent, real = os.getpid(), getattr(summary_module, stage)
+
+    def dies_in_a_worker(*args, **kwargs):
+        if os.getpid() != parent:
+            os._exit(1)
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(summary_module, stage, dies_in_a_worker)
+    pooled = tmp_path / "pooled"
+    assert run("render", "--all", folder, "--out", pooled, "--no-history").status == 0
+    assert _files(pooled) == _files(alone)
+
+
 def test_the_index_lists_the_specs_in_order_and_is_written_last(run, tmp_path, epoch, monkeypatch):
     folder = _registry(tmp_path, 3)
     order = []

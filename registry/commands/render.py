@@ -8,7 +8,7 @@ import os
 import sys
 from pathlib import Path
 
-from typing import TYPE_CHECKING, Any, Iterator
+from typing import TYPE_CHECKING, Any, Callable, Iterator
 
 from ..discovery import UsageError, discover
 from ..hints import id_hint
@@ -19,7 +19,7 @@ if TYPE_CHECKING:
     from datetime import datetime
 
     from ..checks import SpecReport
-    from ..summary import IndexRow, Summary
+    from ..summary import IndexRow
 
 __all__ = ["render", "HELP", "add_arguments", "run"]
 
@@ -139,42 +139,58 @@ def _write(out: Path, files: dict[str, str], *, durable: bool = True) -> list[Pa
 POOL_FROM = 12
 
 
-def _summaries(jobs: list[tuple[SpecReport, Path]], rendered_at: datetime, index_link: bool) -> Iterator[Summary]:
-    """Every job's summary, in order, each as soon as it and those before it are built; in a pool of
-    forked worker processes when there are many and more than one core (where forking is unavailable
-    or the pool cannot start, one after the other). An interrupt stops the workers without waiting
-    for the summaries not yet built."""
-    import multiprocessing
+class _Workers:
+    """Forked worker processes, one per core, running ``work(i)`` for ``i`` in ``range(count)``.
 
-    from ..summary import build_summary
+    Forked workers inherit ``work`` and whatever it reads (the reports), so only the numbers go out
+    and the results come back. :meth:`results` yields them in order; where forking is unavailable or
+    the pool cannot start or breaks, the rest are computed here, one after the other. An interrupt
+    stops the workers without waiting for the results not yet computed (:meth:`close`).
+    """
 
-    workers = min(os.cpu_count() or 1, len(jobs))
-    if len(jobs) >= POOL_FROM and workers > 1 and "fork" in multiprocessing.get_all_start_methods():
+    def __init__(self, work: Callable[[int], Any], count: int) -> None:
+        import multiprocessing
+
+        self._work, self._count, self._done, self._pool, self._pending = work, count, 0, None, None
+        #: Whether workers are computing the results (else :meth:`results` computes them here).
+        self.started = False
+        workers = min(os.cpu_count() or 1, count)
+        if count < POOL_FROM or workers < 2 or "fork" not in multiprocessing.get_all_start_methods():
+            return
         from concurrent.futures import ProcessPoolExecutor
-        from concurrent.futures.process import BrokenProcessPool
-        from functools import partial
 
-        _JOBS[:] = jobs  # forked workers inherit the jobs: only their numbers and the summaries are sent
-        build = partial(_build_summary, rendered_at=rendered_at, index_link=index_link)
-        done = 0
+        _WORK[:] = [work]  # read by the forked workers (see _run_work) until close()
         try:
-            pool = ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork"),
-                                       initializer=_ignore_interrupts)
-        except OSError:
-            pool = None  # e.g. no shared memory for the pool's queues: build them here instead
-        if pool is not None:
+            self._pool = ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork"),
+                                             initializer=_ignore_interrupts)
+            # every task is submitted now: the workers start at once, while this process goes on
+            self._pending = self._pool.map(_run_work, range(count),
+                                           chunksize=max(1, min(8, count // (8 * workers))))
+            self.started = True
+        except OSError:  # e.g. no shared memory for the pool's queues: computed here instead
+            self.close()
+
+    def results(self) -> Iterator[Any]:
+        from concurrent.futures.process import BrokenProcessPool
+
+        if self._pending is not None:
             try:
-                for summary in pool.map(build, range(len(jobs)), chunksize=max(1, min(8, len(jobs) // (8 * workers)))):
-                    done += 1
-                    yield summary
+                for result in self._pending:
+                    self._done += 1
+                    yield result
             except (BrokenProcessPool, OSError):
-                pass  # the rest are built here
+                pass  # the rest are computed here
             finally:
-                pool.shutdown(wait=False, cancel_futures=True)
-                _JOBS.clear()
-        jobs = jobs[done:]
-    for report, path in jobs:
-        yield build_summary(report, path, rendered_at, index_link=index_link)
+                self.close()
+        for index in range(self._done, self._count):
+            self._done += 1
+            yield self._work(index)
+
+    def close(self) -> None:
+        if self._pool is not None:
+            self._pool.shutdown(wait=False, cancel_futures=True)
+            _WORK.clear()
+        self._pool = self._pending = None
 
 
 def _ignore_interrupts() -> None:
@@ -184,15 +200,12 @@ def _ignore_interrupts() -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
-#: The jobs of the pool running now, read by its forked workers.
-_JOBS: list[tuple[SpecReport, Path]] = []
+#: The work of the pool running now (one at a time), read by its forked workers.
+_WORK: list[Callable[[int], Any]] = []
 
 
-def _build_summary(index: int, *, rendered_at: datetime, index_link: bool) -> Summary:
-    from ..summary import build_summary
-
-    report, path = _JOBS[index]
-    return build_summary(report, path, rendered_at, index_link=index_link)
+def _run_work(index: int) -> Any:
+    return _WORK[0](index)
 
 
 def _expected_names(report: SpecReport) -> list[str]:
@@ -238,11 +251,9 @@ class _Progress:
 def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = None,
            registry: list[str] | None = None, history: bool = True, as_json: bool = False) -> int:
     """Render one spec (by id) or all; 0 when everything asked for was written, 1 otherwise."""
-    from ..audit import add_history, add_registration_tags
-    from ..checks import CAUTION, check_registry, skipped_line
+    from ..checks import check_registry, skipped_line
     from ..config import config_loader
-    from ..summary import IndexRow, build_index, render_time
-    from ..summary.htmlpage import SITE_SCRIPT, SITE_SCRIPT_NAME
+    from ..summary import render_time, summary_figure
 
     if all_specs == (spec_id is not None):
         raise UsageError("give a spec ID, or --all (with --out DIR), but not both")
@@ -260,6 +271,27 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     spec_files, reports, skipped = check_registry(spec_files, config_for)
     if skipped and all_specs:
         print(skipped_line(skipped), file=sys.stderr)
+    # A figure depends on its spec and size only: with many specs, workers draw the figures while this
+    # process reads the history.
+    drawable = [report for report in reports if _renderable(report)] if all_specs else []
+    drawing = _Workers(lambda index: summary_figure(drawable[index]), len(drawable))
+    try:
+        return _render_checked(spec_id, reports, spec_files, skipped, config_for, config_errors, drawable, drawing,
+                               folder=folder, out=out, all_specs=all_specs, registry=registry, history=history,
+                               as_json=as_json, rendered_at=rendered_at)
+    finally:
+        drawing.close()
+
+
+def _render_checked(spec_id: str | None, reports: list[SpecReport], spec_files: list[Any], skipped: list[str],
+                    config_for: Any, config_errors: list[str], drawable: list[SpecReport], drawing: _Workers, *,
+                    folder: Path, out: str | None, all_specs: bool, registry: list[str], history: bool,
+                    as_json: bool, rendered_at: datetime) -> int:
+    from ..audit import add_history, add_registration_tags
+    from ..checks import CAUTION
+    from ..summary import IndexRow, build_index, build_summary
+    from ..summary.htmlpage import SITE_SCRIPT, SITE_SCRIPT_NAME
+
     if history:
         add_history(reports, spec_files, registry, config_for)
     else:  # the summaries still name each spec's registration tags: list them once, not once per spec
@@ -298,7 +330,12 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     except WriteRefused as error:
         print(plain_text(f"prespec: error: {error}; nothing was written"), file=sys.stderr)
         return 1
-    summaries = _summaries(jobs, rendered_at, all_specs)
+    figures = dict(zip(map(id, drawable), drawing.results())) if drawing.started else {}
+    drawing.close()
+    job_figures = [figures.get(id(report)) for report, _ in jobs]
+    summaries = _Workers(lambda index: build_summary(*jobs[index], rendered_at, index_link=all_specs,
+                                                     figure=job_figures[index]), len(jobs))
+    built = summaries.results()
     progress = _Progress(len(jobs) if all_specs and out is not None else 0)
     try:
         for report in reports:
@@ -307,7 +344,7 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
                 rows.append(IndexRow(report, None))
                 failed = True
                 continue
-            summary = next(summaries)
+            summary = next(built)
             rows.append(IndexRow(report, summary.page))
             if out is None:
                 files.update(summary.files())

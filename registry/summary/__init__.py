@@ -13,12 +13,12 @@ from .. import __version__
 from ..checks import CAUTION, SpecReport
 from .document import (SITE_FILES, IndexRow, drift_verdict, figure_alt, figure_name, index_markdown, page_stem,
                        summary_markdown)
-from .figure import inline_svg, power_figure
+from .figure import PowerFigure, inline_svg, power_figure
 from .htmlpage import insert_figure, markdown_to_html, page
 from .numbers import analysable, power_curve
 from .provenance import Provenance, iso_utc, provenance, render_time
 
-__all__ = ["Summary", "build_summary", "build_index", "IndexRow", "drift_verdict", "render_time", "Provenance",
+__all__ = ["Summary", "build_summary", "summary_figure", "build_index", "IndexRow", "drift_verdict", "render_time", "Provenance",
            "SITE_FILES", "page_stem"]
 
 
@@ -45,21 +45,34 @@ class Summary:
                 figure_name(self.spec_id): self.svg, **self.figures}
 
 
-def build_summary(report: SpecReport, spec_path: Path, rendered_at: datetime, *, index_link: bool = False) -> Summary:
-    """Everything for one valid, sized spec. ``index_link`` adds a link back to ``index.html``."""
+def summary_figure(report: SpecReport) -> PowerFigure:
+    """The power-curve figure of one valid, sized spec: power against analysable n with the required
+    and planned n marked. It depends on the spec and its size only, not on the history, so ``render``
+    may draw it before the history is read."""
     spec, sample = report.spec, report.sample
     if spec is None or sample is None:
         raise ValueError(f"{report.path}: only a valid spec with a computable sample size can be rendered")
     design = spec.design
-    prov = provenance(report, spec_path, rendered_at)
-    markdown = summary_markdown(report, prov)
     planned = analysable(spec.sample_size.per_group, design.attrition)
     shown_planned = planned if planned >= design.family.min_n else None
     marks = [sample.n_per_group] + ([planned] if shown_planned else [])
     formula = (sample.start_method or design.family.method) if sample.verification is not None else None
-    figure = power_figure(power_curve(design, *marks), target=design.power, required=sample.n_per_group,
-                          planned=shown_planned, unit=design.family.unit, figure_id=f"{spec.id}-power",
-                          formula=formula)
+    return power_figure(power_curve(design, *marks), target=design.power, required=sample.n_per_group,
+                        planned=shown_planned, unit=design.family.unit, figure_id=f"{spec.id}-power",
+                        formula=formula)
+
+
+def build_summary(report: SpecReport, spec_path: Path, rendered_at: datetime, *, index_link: bool = False,
+                  figure: PowerFigure | None = None) -> Summary:
+    """Everything for one valid, sized spec. ``index_link`` adds a link back to ``index.html``;
+    ``figure`` is the spec's :func:`summary_figure` when it was drawn already."""
+    spec, sample = report.spec, report.sample
+    if spec is None or sample is None:
+        raise ValueError(f"{report.path}: only a valid spec with a computable sample size can be rendered")
+    prov = provenance(report, spec_path, rendered_at)
+    markdown = summary_markdown(report, prov)
+    if figure is None:
+        figure = summary_figure(report)
     body = insert_figure(markdown_to_html(markdown), figure_name(spec.id), figure_alt(spec.id),
                          inline_svg(figure), figure.description)
     figures: dict[str, str] = {}
