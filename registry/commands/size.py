@@ -694,9 +694,9 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
                                   "where the search began"))
     elif result.verification is not None:
         mc = result.verification
-        rows.append(("power", f"{result.power:.4f} (simulation of the {family.title}: {mc['reps']:,} simulated "
-                              f"experiments, {mc['distribution']} outcome, seed {mc['seed']}, Monte Carlo standard "
-                              f"error {mc['standard_error']:.4f})"))
+        rows.append(("power", f"{result.power:.4f} (simulation of the {family.analysis_title(design)}: "
+                              f"{mc['reps']:,} simulated experiments, {mc['distribution']} outcome, seed {mc['seed']}, "
+                              f"Monte Carlo standard error {mc['standard_error']:.4f})"))
         if result.formula_power is not None:
             rows.append(("formula", f"{result.formula_power:.4f} ({formula_method(design)}; the simulated power "
                                     "is what the test delivers)"))
@@ -718,17 +718,21 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
     if isinstance(result, SampleSize):
         rows.append(("method", result.method))
     elif result.verification is not None:
-        rows.append(("method", f"simulation of the {family.title} at this n, with the settings of the size search; "
-                               f"the formula: {formula_method(design)}"))
+        rows.append(("method", f"simulation of the {family.analysis_title(design)} at this n, with the settings of "
+                               f"the size search; the formula: {formula_method(design)}"))
     elif design.sequential is not None and design.sequential.count > 1:
         rows.append(("method", f"{_kind(design)}; the detectable effect: {family.method}"))
     else:
         rows.append(("method", family.method))
-    rows.append(("reference", family.reference))
+    rows.append(("reference", family.references(design)))
     for note in result.notes:
         rows.append(("note", note))
     heading = "Sample size" if isinstance(result, SampleSize) else f"Power at n = {result.n_per_group:,}"
-    out.print(f"{heading}: {family.title} ({family.name})")
+    analysed = family.analysis_title(design)
+    if analysed[1:2].islower():  # "Two-sample t-test ..." inside the sentence, "ANOVA" as it is
+        analysed = analysed[0].lower() + analysed[1:]
+    out.print(f"{heading}: {family.title} ({family.name})"
+              + (f", analysed by the {analysed}" if analysed.lower() != family.title.lower() else ""))
     width = max(len(label) for label, _ in rows)
     for label, text in rows:
         out.print(f"  {label:<{width}}  {text}", soft_wrap=True)

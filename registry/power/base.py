@@ -461,6 +461,57 @@ class Family(ABC):
         other families size clustered designs by the design effect and never reach this."""
         raise TypeError(f"{self.name} has no cluster-means analysis; it sizes clustered designs by the design effect")
 
+    # The hooks below describe the cluster-level analysis of families with :attr:`cluster_means`; the
+    # defaults describe a t-test on cluster means, families analysing another cluster summary override them.
+
+    def cluster_exact(self, design: DesignBase) -> bool:
+        """Whether :meth:`cluster_power` is exact for this clustered design (else its size is verified by
+        simulating :meth:`simulate_clusters`): exact for normal cluster means of equal size."""
+        assert design.cluster is not None
+        return design.cluster.size_cv == 0
+
+    def cluster_analysis(self, design: DesignBase) -> str:
+        """The test a clustered design is analysed with, in words."""
+        return f"{self.title} on cluster means"
+
+    def cluster_method(self, design: DesignBase) -> str:
+        """The method of a clustered size computed by :meth:`cluster_power`."""
+        return f"{self.method}, applied to the cluster means (k1 and k2 clusters in place of n1 and n2)"
+
+    def cluster_formula(self, design: DesignBase) -> str:
+        """The formula a simulation-verified clustered size starts from, in words (its label included)."""
+        return ("approximation for unequal cluster sizes: the noncentral t on cluster means, df = k1 + k2 - 2, "
+                "each mean with the first-order variance icc + (1 - icc)(1 + cv^2) / m")
+
+    def cluster_model(self, design: DesignBase) -> str:
+        """How :meth:`simulate_clusters` draws the clusters, in words (for the simulated method)."""
+        return "cluster sizes drawn with the stated coefficient of variation"
+
+    def cluster_note(self, design: DesignBase) -> str:
+        """The note saying how a clustered design is analysed and sized."""
+        c = design.cluster
+        assert c is not None
+        cv = f" and cluster sizes varying with coefficient of variation {c.size_cv:g}" if c.size_cv else ""
+        return (
+            f"randomised in clusters of {c.size} with intracluster correlation {c.icc:g}{cv}: the test is run on "
+            f"the cluster means, a t-test with k1 + k2 - 2 degrees of freedom for k1 and k2 clusters, each mean "
+            f"with variance {c.mean_variance:.4g} x the outcome's variance (design effect {c.design_effect:.4g} "
+            "/ cluster size); enrolment is then allowed for attrition and rounded up to whole clusters"
+            + ("; with unequal sizes the cluster means' variance is a first-order approximation" if cv else "")
+        )
+
+    def references(self, design: DesignBase) -> str:
+        """The published references of the method this design is sized by (the family's own unless a
+        cluster-level analysis adds its own)."""
+        return self.reference
+
+    def analysis_title(self, design: DesignBase) -> str:
+        """The test the lab runs on this design, in words: the family's title, or for a clustered design
+        sized on a cluster-level analysis, that analysis."""
+        if design.cluster is not None and self.cluster_means:
+            return self.cluster_analysis(design)
+        return self.title
+
     def doubts(self, design: DesignBase) -> tuple[str, ...]:
         """Reasons to distrust this design's computed size (check reports them as warnings)."""
         return ()

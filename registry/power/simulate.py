@@ -73,7 +73,7 @@ def standard_error(power: float, reps: int) -> float:
 def chunk_reps(design: DesignBase, n: int) -> int:
     """Replicates per chunk so that one chunk holds about ``_CHUNK_CELLS`` simulated values."""
     per_rep = max(1, sum(design.family.group_sizes(design, n)))
-    if design.cluster is not None:  # clustered designs are simulated on cluster means
+    if design.cluster is not None:  # clustered designs are simulated one value per cluster
         per_rep = max(1, per_rep // design.cluster.size)
     return max(1, _CHUNK_CELLS // per_rep)
 
@@ -105,13 +105,14 @@ def simulated_power(
             raise InvalidSimulation(
                 f"simulating clustered {family.name} designs is not offered: the simulator draws independent "
                 "units. Simulate the design without its cluster block at n / design effect units per group")
-        if distribution not in (None, "normal"):
-            raise InvalidSimulation(f"clustered {family.name} designs are simulated with normal outcomes; "
+        own = family.distributions[0]  # the outcome the cluster-level model describes
+        if distribution not in (None, own):
+            raise InvalidSimulation(f"clustered {family.name} designs are simulated with {own} outcomes; "
                                     f"got {distribution!r}")
         clusters = n // design.cluster.size
         if clusters < 2:
             raise InvalidSimulation(f"{n} units make fewer than 2 whole clusters of {design.cluster.size}; the "
-                                    "t-test on cluster means needs at least 2 clusters per group")
+                                    f"{family.cluster_analysis(design)} needs at least 2 clusters per group")
     if distribution is None:
         distribution = family.default_distribution(design)
     if distribution not in family.distributions:
@@ -133,7 +134,7 @@ def simulated_power(
         rng = UnitStreams(seed, first, step)
         if clusters is None:
             decisions = family.simulate(design, n, step, rng, distribution)
-        else:  # the test on cluster means (families with cluster_means)
+        else:  # the cluster-level test (families with cluster_means)
             decisions = family.simulate_clusters(design, clusters, step, rng)
         rejected += int(np.count_nonzero(decisions))
         done += step

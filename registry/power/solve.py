@@ -129,15 +129,7 @@ def _shared_notes(design: DesignBase) -> list[str]:
             "than the per-outcome power"
         )
     if design.cluster is not None and _by_cluster_means(design.family, design):
-        c = design.cluster
-        cv = f" and cluster sizes varying with coefficient of variation {c.size_cv:g}" if c.size_cv else ""
-        notes.append(
-            f"randomised in clusters of {c.size} with intracluster correlation {c.icc:g}{cv}: the test is run on "
-            f"the cluster means, a t-test with k1 + k2 - 2 degrees of freedom for k1 and k2 clusters, each mean "
-            f"with variance {c.mean_variance:.4g} x the outcome's variance (design effect {c.design_effect:.4g} "
-            "/ cluster size); enrolment is then allowed for attrition and rounded up to whole clusters"
-            + ("; with unequal sizes the cluster means' variance is a first-order approximation" if cv else "")
-        )
+        notes.append(design.family.cluster_note(design))
     elif design.cluster is not None:
         c = design.cluster
         notes.append(
@@ -156,7 +148,7 @@ def _method(family: Family, design: DesignBase) -> str:
     if design.cluster is None:
         return family.method
     if _by_cluster_means(family, design):
-        return f"{family.method}, applied to the cluster means (k1 and k2 clusters in place of n1 and n2)"
+        return family.cluster_method(design)
     return (f"design-effect approximation: the individual-level n times the design effect "
             f"{design.design_effect:.4g} (assumes many clusters); the individual-level n: {family.method}")
 
@@ -291,7 +283,7 @@ def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> S
         enrolment_total=sum(enrolled),
         unit=family.unit,
         method=_method(family, design),
-        reference=family.reference,
+        reference=family.references(design),
         events=events,
         notes=notes + tuple(family.notes(tested)) + tuple(_shared_notes(design)),
         alpha_per_test=tested.alpha if design.multiplicity is not None else None,
@@ -436,8 +428,8 @@ def power_at(design: DesignBase, n: int) -> PowerAtN:
         assert design.cluster is not None
         if n < 2 * design.cluster.size:
             raise InfeasibleDesign(
-                f"{n} units make fewer than 2 whole clusters of {design.cluster.size}; the t-test on cluster "
-                "means needs at least 2 clusters per group", "n")
+                f"{n} units make fewer than 2 whole clusters of {design.cluster.size}; the "
+                f"{family.cluster_analysis(design)} needs at least 2 clusters per group", "n")
         fn = _power_fn(family, tested)
         mde = _minimum_effect(family, tested, n, fn)
         at_n = float(fn(np.array([n]), es)[0])

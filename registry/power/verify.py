@@ -58,7 +58,7 @@ Progress = Callable[[int, "int | None"], None]
 _GROWTH_LIMIT = 50  # the search gives up beyond 50 times the formula's n
 
 #: Part of every cache key: raise it whenever the search or a simulator changes its answers.
-ALGORITHM = 3
+ALGORITHM = 4
 
 
 def needs_verification(design: DesignBase) -> bool:
@@ -66,14 +66,15 @@ def needs_verification(design: DesignBase) -> bool:
 
     True for families whose size is an approximation (``Family.verify_by_simulation``), for
     designs whose ``design.simulation`` names an outcome other than the family's own model, and
-    for the t-test on cluster means with unequal cluster sizes (``cluster.size_cv > 0``); False for
-    other clustered designs (their simulators draw independent units: the design effect is
-    labelled an approximation instead)."""
+    for clustered designs whose cluster-level power is an approximation (``Family.cluster_exact``
+    False: the t-test on cluster means with unequal cluster sizes, the t-test on cluster
+    proportions); False for other clustered designs (families without a cluster-level analysis
+    simulate independent units: the design effect is labelled an approximation instead)."""
     family = design.family
-    if design.cluster is not None:  # only the cluster-means t with unequal cluster sizes is simulated
+    if design.cluster is not None:  # the cluster-level analyses whose power is approximate are simulated
         plan = design.simulation
-        normal = plan is None or plan.distribution in (None, "normal")
-        return family.cluster_means and design.cluster.size_cv > 0 and normal
+        own = plan is None or plan.distribution in (None, family.distributions[0])
+        return family.cluster_means and not family.cluster_exact(design) and own
     if getattr(family, "verify_by_simulation", False):
         return True
     plan = design.simulation
@@ -82,10 +83,9 @@ def needs_verification(design: DesignBase) -> bool:
 
 def formula_method(design: DesignBase) -> str:
     """The formula a verified design's search starts from, in words (its label included)."""
-    if design.cluster is not None:
-        return ("approximation for unequal cluster sizes: the noncentral t on cluster means, df = k1 + k2 - 2, "
-                "each mean with the first-order variance icc + (1 - icc)(1 + cv^2) / m")
     family, plan = design.family, design.simulation
+    if design.cluster is not None:
+        return family.cluster_formula(design)
     own = family.default_distribution(design.as_tested())
     if plan is not None and plan.distribution is not None and plan.distribution != own:
         return f"{family.method}, for {own} outcomes, not the spec's {plan.distribution} outcome"
@@ -218,9 +218,9 @@ def verified_sample_size(
     formula = solve_sample_size(design)
     reps, seed, distribution = _settings(design, reps, seed)
     family = design.family
-    if reps * formula.n_total > SIMULATION_BUDGET:
+    if reps * _drawn(design, formula.n_per_group) > SIMULATION_BUDGET:
         return dataclasses.replace(formula, notes=(
-            _over_budget("not verified by simulation", "size", formula.n_total, reps, family)
+            _over_budget("not verified by simulation", "size", design, formula.n_per_group, reps)
             + " (prespec size --simulate checks one n)", *formula.notes))
     cache = SizeCache(cache_dir)
     key = cache_key("verified-size", {"design": design.model_dump(mode="json"), "reps": reps, "seed": seed,
@@ -249,9 +249,8 @@ def verified_sample_size(
     sim_distribution = distribution or family.default_distribution(design.as_tested())
     below = found.get("below")
     previous = n - unit
-    on = " on cluster means" if design.cluster is not None else ""
-    note = (f"simulated power of the {family.title}{on} at n = {n}: {achieved:.4f} (standard error {se:.4f}, "
-            f"{reps:,} simulated experiments per n, {sim_distribution} outcome, seed {seed})"
+    note = (f"simulated power of the {family.analysis_title(design)} at n = {n}: {achieved:.4f} (standard error "
+            f"{se:.4f}, {reps:,} simulated experiments per n, {sim_distribution} outcome, seed {seed})"
             + (f"; at n = {previous}" + (f" ({previous // unit} clusters)" if unit > 1 else "") + f": {below:.4f}"
                if below is not None else "")
             + f"; the formula gave {formula.n_per_group} ({formula_method(design)})")
@@ -272,9 +271,9 @@ def verified_sample_size(
         method=(f"simulation: the smallest n at which the simulated {family.title} reaches the target power "
                 "and n - 1 does not, every n from the same seed with common random numbers"
                 if design.cluster is None else
-                f"simulation: the fewest whole clusters per group at which the simulated {family.title} on "
-                "cluster means (cluster sizes drawn with the stated coefficient of variation) reaches the target "
-                "power and one cluster fewer does not, every number of clusters from the same seed"),
+                f"simulation: the fewest whole clusters per group at which the simulated "
+                f"{family.cluster_analysis(design)} reaches the target power and one cluster fewer does not "
+                f"({family.cluster_model(design)}), every number of clusters from the same seed"),
         label="simulation",
         start_n=formula.n_per_group,
         start_method=formula_method(design),
@@ -283,10 +282,24 @@ def verified_sample_size(
     )
 
 
-def _over_budget(what: str, answer: str, units: int, reps: int, family: Any) -> str:
+def _drawn(design: DesignBase, n: int) -> int:
+    """Values one simulated experiment at ``n`` analysable units in group 1 draws: its units, or for a
+    clustered design its clusters (the cluster-level simulators draw one summary per cluster)."""
+    family = design.family
+    if design.cluster is not None and family.cluster_means:
+        return sum(family.cluster_groups(design, n // design.cluster.size))
+    return sum(family.group_sizes(design, n))
+
+
+def _over_budget(what: str, answer: str, design: DesignBase, n: int, reps: int) -> str:
     """The note of a result left to the formula because simulating it exceeds :data:`SIMULATION_BUDGET`."""
-    return (f"{what}: {reps:,} simulated experiments of {units:,} units exceed prespec's budget of "
-            f"{SIMULATION_BUDGET:,} simulated units; the {answer} is the formula's ({family.method}), whose "
+    family = design.family
+    drawn = _drawn(design, n)
+    clustered = design.cluster is not None and family.cluster_means
+    units = "clusters" if clustered else "units"
+    method = family.cluster_method(design) if clustered else family.method
+    return (f"{what}: {reps:,} simulated experiments of {drawn:,} {units} exceed prespec's budget of "
+            f"{SIMULATION_BUDGET:,} simulated {units}; the {answer} is the formula's ({method}), whose "
             "large-sample error is small at this n")
 
 
@@ -315,9 +328,9 @@ def verified_power_at(
     formula = power_at(design, n)
     reps, seed, distribution = _settings(design, reps, seed)
     family = design.family
-    if reps * formula.n_total > SIMULATION_BUDGET:  # as for the size search: the formula, said so
+    if reps * _drawn(design, n) > SIMULATION_BUDGET:  # as for the size search: the formula, said so
         return dataclasses.replace(formula, notes=(
-            _over_budget("not simulated", "power", formula.n_total, reps, family), *formula.notes))
+            _over_budget("not simulated", "power", design, n, reps), *formula.notes))
     sim_distribution = distribution or family.default_distribution(design.as_tested())
     cache = SizeCache(cache_dir)
     key = cache_key("simulated-power", {"design": design.model_dump(mode="json"), "n": n, "reps": reps,

@@ -330,7 +330,7 @@ def _justification(report: SpecReport) -> str:
         opening = "The sample size is based on the primary comparison of the design."
     sentences = [
         opening,
-        f"The primary analysis uses the {md.inline(_lower_first(family.title))}"
+        f"The primary analysis uses the {md.inline(_lower_first(family.analysis_title(design)))}"
         f"{'' if family.undirected else ', ' + _alternative(design) + ','} at a "
         f"significance level of {_num(design.alpha)} with a target power of {design.power:.0%}.",
         _effect_phrase(report),
@@ -348,7 +348,7 @@ def _justification(report: SpecReport) -> str:
     if report.sequential is None and sample.verification is not None:  # the size is the simulated test's
         method = f"{sample.method}; the search started from {sample.start_method or family.method}"
     sentences.append(f"Method of calculation: {md.inline(method)} "
-                     f"({md.inline(family.reference).rstrip('.')}).")
+                     f"({md.inline(family.references(design)).rstrip('.')}).")
     counted = _counted(family)
     total = f" ({_num(sample.n_total)} in total)" if sample.n_total != sample.n_per_group else ""
     simulated = "simulated " if sample.verification is not None else ""
