@@ -113,11 +113,14 @@ def spec_history(registry: RegistryHistory, spec_id: str, extra_locked: Sequence
     return dataclasses.replace(history, findings=history.findings + rewritten) if rewritten else history
 
 
-def registrations(repo: Repository, spec_id: str, tags: Sequence[TagInfo] | None = None) -> list[Registration]:
+def registrations(repo: Repository | None, spec_id: str, tags: Sequence[TagInfo] | None = None) -> list[Registration]:
     """The registration tags of ``spec_id``, oldest version first (from ``tags`` when given:
-    all of ``repo.tags("prespec")``, listed once for a whole registry)."""
+    all of ``repo.tags("prespec")``, listed once for a whole registry; ``repo`` is only asked
+    when they are not)."""
+    if tags is None and repo is None:
+        raise ValueError("registrations needs the repository or its listed tags")
     out = []
-    for tag in tags if tags is not None else repo.tags(f"prespec/{spec_id}/v*"):
+    for tag in tags if tags is not None else repo.tags(f"prespec/{spec_id}/v*"):  # type: ignore[union-attr]
         version = tag_version(tag.name, spec_id)
         if version is None:
             continue

@@ -380,6 +380,20 @@ class Repository:
                 out.append(record[3:].decode("utf-8", "surrogateescape"))
         return out
 
+    def head_blobs(self) -> dict[str, str] | None:
+        """Every file in HEAD's tree by path, with its blob id (one ``git ls-tree -r``); ``None`` in a
+        repository without commits. What :meth:`matches_head` asks for one file, for all of them."""
+        if self.head() is None:
+            return None
+        listing = self._run("ls-tree", "-r", "-z", "--full-tree", "HEAD", stdout_as_string=False)
+        blobs = {}
+        for record in listing.split(b"\0"):  # type: ignore[union-attr]
+            meta, _, found = record.partition(b"\t")
+            parts = meta.split()
+            if found and len(parts) == 3 and parts[1] == b"blob":
+                blobs[found.decode("utf-8", "surrogateescape")] = parts[2].decode()
+        return blobs
+
     def matches_head(self, relpath: str, path: Path) -> bool:
         """Whether the file at ``path`` holds exactly the bytes of ``relpath``'s blob in HEAD.
 

@@ -478,6 +478,41 @@ def test_provenance_outside_git(run, tmp_path, epoch):
     assert _cells(markdown, "Registration tag")[1] == "not registered"
 
 
+def test_file_facts_of_many_files_are_what_each_file_gives_alone(tmp_path):
+    # render --all asks git once per repository; each answer must be the one-file answer
+    git = pytest.importorskip("git")
+    from registry.git import find_repository
+    from registry.summary.provenance import FileFacts, file_facts
+
+    lab = tmp_path / "lab"
+    (lab / "sub folder").mkdir(parents=True)
+    repo = git.Repo.init(lab)
+    with repo.config_writer() as config:
+        config.set_value("user", "name", "Lab Member")
+        config.set_value("user", "email", "member@example.org")
+    names = ["same.yaml", "edited.yaml", "sub folder/dosé.yaml", "untracked.yaml"]
+    for name in names:
+        (lab / name).write_text(f"id: {len(name)}\n", encoding="utf-8")
+    repo.index.add(names[:3])
+    repo.index.commit("three specs")
+    (lab / "edited.yaml").write_text("id: changed\n", encoding="utf-8")
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    git.Repo.init(empty)
+    (empty / "first.yaml").write_text("id: first\n", encoding="utf-8")
+    paths = [lab / name for name in names] + [empty / "first.yaml"]
+
+    def alone(path: Path) -> FileFacts:
+        found = find_repository(path.absolute())
+        relative = found.relpath(path) if found is not None else None
+        return FileFacts(relative, relative is not None and not found.matches_head(relative, path))
+
+    facts = file_facts(paths)
+    assert facts == {path: alone(path) for path in paths}
+    assert [facts[path].modified for path in paths] == [False, True, False, True, True]
+    assert facts[lab / "sub folder/dosé.yaml"].relative == "sub folder/dosé.yaml"
+
+
 # ------------------------------------------------------------------ looks
 
 

@@ -79,8 +79,8 @@ def test_the_pool_writes_what_one_process_writes(run, tmp_path, epoch, monkeypat
 
 @pytest.mark.parametrize("stage", ["summary_figure", "build_summary"])
 def test_a_worker_that_dies_leaves_the_rest_to_this_process(run, tmp_path, epoch, monkeypatch, stage):
-    # the figures are drawn in workers while the history is read, then the pages are built in workers:
-    # a worker lost at either stage (killed, out of memory) costs time, never a page or a byte
+    # a worker lost while drawing a figure or building a page (killed, out of memory) costs time,
+    # never a page or a byte
     import os
 
     count = render_command.POOL_FROM + 1

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import gc
 import json
 import os
 import sys
@@ -16,8 +17,6 @@ from ..fsutil import WriteRefused, confined, write_atomic
 from ..problems import json_escaped, plain_text
 
 if TYPE_CHECKING:
-    from datetime import datetime
-
     from ..checks import SpecReport
     from ..summary import IndexRow
 
@@ -143,54 +142,69 @@ class _Workers:
     """Forked worker processes, one per core, running ``work(i)`` for ``i`` in ``range(count)``.
 
     Forked workers inherit ``work`` and whatever it reads (the reports), so only the numbers go out
-    and the results come back. :meth:`results` yields them in order; where forking is unavailable or
-    the pool cannot start or breaks, the rest are computed here, one after the other. An interrupt
-    stops the workers without waiting for the results not yet computed (:meth:`close`).
+    and the results come back, a few at a time. :meth:`results` yields them in order; where forking
+    is unavailable or the pool cannot start or breaks, the rest are computed here, one after the
+    other. An interrupt stops the workers without waiting for the results not yet computed (:meth:`close`).
     """
 
     def __init__(self, work: Callable[[int], Any], count: int) -> None:
         import multiprocessing
 
-        self._work, self._count, self._done, self._pool, self._pending = work, count, 0, None, None
-        #: Whether workers are computing the results (else :meth:`results` computes them here).
-        self.started = False
+        self._work, self._count, self._pool = work, count, None
+        self._chunks: list[tuple[int, int, Any]] = []  # (first index, end, future)
         workers = min(os.cpu_count() or 1, count)
         if count < POOL_FROM or workers < 2 or "fork" not in multiprocessing.get_all_start_methods():
             return
         from concurrent.futures import ProcessPoolExecutor
 
         _WORK[:] = [work]  # read by the forked workers (see _run_work) until close()
+        size = max(1, min(8, count // (8 * workers)))
+        # The workers share this process's memory until they write to it; frozen, the inherited
+        # objects are left out of the workers' garbage collections, which would otherwise write to
+        # (and so copy) every page holding one.
+        gc.freeze()
         try:
             self._pool = ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork"),
                                              initializer=_ignore_interrupts)
-            # every task is submitted now: the workers start at once, while this process goes on
-            self._pending = self._pool.map(_run_work, range(count),
-                                           chunksize=max(1, min(8, count // (8 * workers))))
-            self.started = True
-        except OSError:  # e.g. no shared memory for the pool's queues: computed here instead
+            # every chunk is submitted now: the workers start at once, while this process goes on
+            for first in range(0, count, size):
+                end = min(first + size, count)
+                self._chunks.append((first, end, self._pool.submit(_run_work, first, end)))
+        except (OSError, RuntimeError):  # e.g. no shared memory for the pool's queues: computed here instead
             self.close()
+            self._chunks = []
+        finally:
+            gc.unfreeze()  # the workers have forked (all at the first submit, with "fork")
+
+    @property
+    def started(self) -> bool:
+        """Whether workers were given the work (else :meth:`results` computes it here)."""
+        return bool(self._chunks)
 
     def results(self) -> Iterator[Any]:
+        """Every result in order: the workers', and here what they could not give."""
+        from concurrent.futures import CancelledError
         from concurrent.futures.process import BrokenProcessPool
 
-        if self._pending is not None:
-            try:
-                for result in self._pending:
-                    self._done += 1
-                    yield result
-            except (BrokenProcessPool, OSError):
-                pass  # the rest are computed here
-            finally:
-                self.close()
-        for index in range(self._done, self._count):
-            self._done += 1
+        done = 0
+        try:
+            for first, end, future in self._chunks:
+                try:
+                    chunk = future.result()
+                except (BrokenProcessPool, CancelledError, OSError):
+                    break  # the rest are computed here
+                done = end
+                yield from chunk
+        finally:
+            self.close()
+        for index in range(done, self._count):
             yield self._work(index)
 
     def close(self) -> None:
         if self._pool is not None:
             self._pool.shutdown(wait=False, cancel_futures=True)
             _WORK.clear()
-        self._pool = self._pending = None
+        self._pool = None
 
 
 def _ignore_interrupts() -> None:
@@ -204,8 +218,9 @@ def _ignore_interrupts() -> None:
 _WORK: list[Callable[[int], Any]] = []
 
 
-def _run_work(index: int) -> Any:
-    return _WORK[0](index)
+def _run_work(first: int, end: int) -> list[Any]:
+    work = _WORK[0]
+    return [work(index) for index in range(first, end)]
 
 
 def _expected_names(report: SpecReport) -> list[str]:
@@ -251,9 +266,11 @@ class _Progress:
 def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = None,
            registry: list[str] | None = None, history: bool = True, as_json: bool = False) -> int:
     """Render one spec (by id) or all; 0 when everything asked for was written, 1 otherwise."""
-    from ..checks import check_registry, skipped_line
+    from ..audit import add_history, add_registration_tags
+    from ..checks import CAUTION, check_registry, skipped_line
     from ..config import config_loader
-    from ..summary import render_time, summary_figure
+    from ..summary import IndexRow, build_index, build_summary, file_facts, render_time
+    from ..summary.htmlpage import SITE_SCRIPT, SITE_SCRIPT_NAME
 
     if all_specs == (spec_id is not None):
         raise UsageError("give a spec ID, or --all (with --out DIR), but not both")
@@ -271,26 +288,6 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     spec_files, reports, skipped = check_registry(spec_files, config_for)
     if skipped and all_specs:
         print(skipped_line(skipped), file=sys.stderr)
-    # A figure depends on its spec and size only: with many specs, workers draw the figures while this
-    # process reads the history.
-    drawable = [report for report in reports if _renderable(report)] if all_specs else []
-    drawing = _Workers(lambda index: summary_figure(drawable[index]), len(drawable))
-    try:
-        return _render_checked(spec_id, reports, spec_files, skipped, config_for, config_errors, drawable, drawing,
-                               folder=folder, out=out, all_specs=all_specs, registry=registry, history=history,
-                               as_json=as_json, rendered_at=rendered_at)
-    finally:
-        drawing.close()
-
-
-def _render_checked(spec_id: str | None, reports: list[SpecReport], spec_files: list[Any], skipped: list[str],
-                    config_for: Any, config_errors: list[str], drawable: list[SpecReport], drawing: _Workers, *,
-                    folder: Path, out: str | None, all_specs: bool, registry: list[str], history: bool,
-                    as_json: bool, rendered_at: datetime) -> int:
-    from ..audit import add_history, add_registration_tags
-    from ..checks import CAUTION
-    from ..summary import IndexRow, build_index, build_summary
-    from ..summary.htmlpage import SITE_SCRIPT, SITE_SCRIPT_NAME
 
     if history:
         add_history(reports, spec_files, registry, config_for)
@@ -330,11 +327,9 @@ def _render_checked(spec_id: str | None, reports: list[SpecReport], spec_files: 
     except WriteRefused as error:
         print(plain_text(f"prespec: error: {error}; nothing was written"), file=sys.stderr)
         return 1
-    figures = dict(zip(map(id, drawable), drawing.results())) if drawing.started else {}
-    drawing.close()
-    job_figures = [figures.get(id(report)) for report, _ in jobs]
+    facts = file_facts([path for _, path in jobs]) if all_specs else {}  # git asked once per repository
     summaries = _Workers(lambda index: build_summary(*jobs[index], rendered_at, index_link=all_specs,
-                                                     figure=job_figures[index]), len(jobs))
+                                                     facts=facts.get(jobs[index][1])), len(jobs))
     built = summaries.results()
     progress = _Progress(len(jobs) if all_specs and out is not None else 0)
     try:

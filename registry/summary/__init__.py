@@ -16,9 +16,9 @@ from .document import (SITE_FILES, IndexRow, drift_verdict, figure_alt, figure_n
 from .figure import PowerFigure, inline_svg, power_figure
 from .htmlpage import insert_figure, markdown_to_html, page
 from .numbers import analysable, power_curve
-from .provenance import Provenance, iso_utc, provenance, render_time
+from .provenance import FileFacts, Provenance, file_facts, iso_utc, provenance, render_time
 
-__all__ = ["Summary", "build_summary", "summary_figure", "build_index", "IndexRow", "drift_verdict", "render_time", "Provenance",
+__all__ = ["Summary", "build_summary", "summary_figure", "file_facts", "build_index", "IndexRow", "drift_verdict", "render_time", "Provenance",
            "SITE_FILES", "page_stem"]
 
 
@@ -47,8 +47,7 @@ class Summary:
 
 def summary_figure(report: SpecReport) -> PowerFigure:
     """The power-curve figure of one valid, sized spec: power against analysable n with the required
-    and planned n marked. It depends on the spec and its size only, not on the history, so ``render``
-    may draw it before the history is read."""
+    and planned n marked."""
     spec, sample = report.spec, report.sample
     if spec is None or sample is None:
         raise ValueError(f"{report.path}: only a valid spec with a computable sample size can be rendered")
@@ -63,16 +62,16 @@ def summary_figure(report: SpecReport) -> PowerFigure:
 
 
 def build_summary(report: SpecReport, spec_path: Path, rendered_at: datetime, *, index_link: bool = False,
-                  figure: PowerFigure | None = None) -> Summary:
+                  facts: FileFacts | None = None) -> Summary:
     """Everything for one valid, sized spec. ``index_link`` adds a link back to ``index.html``;
-    ``figure`` is the spec's :func:`summary_figure` when it was drawn already."""
+    ``facts`` is what git says of its file when :func:`~registry.summary.provenance.file_facts` asked
+    for many files at once."""
     spec, sample = report.spec, report.sample
     if spec is None or sample is None:
         raise ValueError(f"{report.path}: only a valid spec with a computable sample size can be rendered")
-    prov = provenance(report, spec_path, rendered_at)
+    prov = provenance(report, spec_path, rendered_at, facts)
     markdown = summary_markdown(report, prov)
-    if figure is None:
-        figure = summary_figure(report)
+    figure = summary_figure(report)
     body = insert_figure(markdown_to_html(markdown), figure_name(spec.id), figure_alt(spec.id),
                          inline_svg(figure), figure.description)
     figures: dict[str, str] = {}

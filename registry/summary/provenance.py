@@ -6,6 +6,7 @@ import os
 from dataclasses import dataclass
 from datetime import date, datetime, timezone
 from pathlib import Path
+from typing import Any
 
 from .. import __version__
 from ..audit import registrations
@@ -15,7 +16,7 @@ from ..discovery import UsageError
 from ..git import GitProblem, find_repository
 from ..problems import plain_text
 
-__all__ = ["Provenance", "provenance", "render_time", "iso_utc"]
+__all__ = ["Provenance", "provenance", "render_time", "iso_utc", "FileFacts", "file_facts"]
 
 
 @dataclass(frozen=True)
@@ -51,21 +52,72 @@ def render_time() -> datetime:
         ) from None
 
 
-def provenance(report: SpecReport, path: Path, rendered_at: datetime) -> Provenance:
-    """Provenance of a checked spec; its git facts come from the history ``check`` read."""
+@dataclass(frozen=True)
+class FileFacts:
+    """What git says of one spec file for its provenance: its path in the repository (None outside
+    one) and whether the file differs from its blob in HEAD (or git could not tell)."""
+
+    relative: str | None
+    modified: bool
+
+
+def file_facts(paths: list[Path]) -> dict[Path, FileFacts]:
+    """:class:`FileFacts` of many spec files, asking git once per repository (``render --all``): one
+    repository lookup per folder and one listing of HEAD's blobs per repository, where one spec at a
+    time costs two git processes each. The answers are those :func:`provenance` finds alone."""
+    import hashlib
+
+    roots: dict[Path, Any] = {}
+    heads: dict[Path, dict[str, str] | None] = {}
+    facts = {}
+    for path in paths:
+        where = Path(path).absolute()
+        folder = where if where.is_dir() else where.parent
+        if folder not in roots:
+            roots[folder] = find_repository(where)
+        repo = roots[folder]
+        relative = repo.relpath(path) if repo is not None else None
+        if repo is None or relative is None:
+            facts[path] = FileFacts(relative, False)
+            continue
+        if repo.root not in heads:
+            try:
+                heads[repo.root] = repo.head_blobs()
+            except GitProblem:
+                heads[repo.root] = None  # cannot tell: never claim a summary matches a commit
+        blobs = heads[repo.root]
+        committed = blobs.get(relative) if blobs is not None else None
+        try:
+            raw = Path(path).read_bytes()
+        except OSError:
+            raw = None
+        same = committed is not None and raw is not None and (
+            hashlib.sha1(b"blob %d\0" % len(raw) + raw).hexdigest() == committed)
+        facts[path] = FileFacts(relative, not same)
+    return facts
+
+
+def provenance(report: SpecReport, path: Path, rendered_at: datetime, facts: FileFacts | None = None) -> Provenance:
+    """Provenance of a checked spec; its git facts come from the history ``check`` read, and the file's
+    from ``facts`` when :func:`file_facts` found them already (else git is asked here)."""
     spec = report.spec
     assert spec is not None
-    repo = find_repository(Path(path).absolute())
-    relative = repo.relpath(path) if repo is not None else None
-    last = report.history.last if report.history is not None else None
-    modified = False
     tags: tuple[tuple[str, str], ...] = ()
-    if repo is not None and relative is not None:
-        try:
-            modified = not repo.matches_head(relative, path)  # blobs compared: no index, no repository programs
-            tags = tuple((r.tag.name, r.tag.commit) for r in registrations(repo, spec.id, report.registration_tags))
-        except GitProblem:
-            modified = True  # cannot tell: never claim the summary matches a commit
+    if facts is not None and (facts.relative is None or report.registration_tags is not None):
+        relative, modified = facts.relative, facts.modified
+        if relative is not None:
+            tags = tuple((r.tag.name, r.tag.commit) for r in registrations(None, spec.id, report.registration_tags))
+    else:
+        repo = find_repository(Path(path).absolute())
+        relative = repo.relpath(path) if repo is not None else None
+        modified = False
+        if repo is not None and relative is not None:
+            try:
+                modified = not repo.matches_head(relative, path)  # blobs compared: no index, no repository programs
+                tags = tuple((r.tag.name, r.tag.commit) for r in registrations(repo, spec.id, report.registration_tags))
+            except GitProblem:
+                modified = True  # cannot tell: never claim the summary matches a commit
+    last = report.history.last if report.history is not None else None
     return Provenance(
         spec_path=plain_text(relative) if relative else report.path,
         commit=last.sha if last else None,
