@@ -502,8 +502,9 @@ def _template_texts(test: str) -> tuple[tuple[tuple[Any, ...], str], ...]:
     from .commands.new import template
     from .yamlio import load_bytes_fast
 
-    data = load_bytes_fast(template(_ID_SENTINEL, test, None, "schema.json", _date(2000, 1, 1)).encode("utf-8"),
-                           "template").data
+    # per_group: any number (only the texts are read), so the example design is not sized
+    text = template(_ID_SENTINEL, test, None, "schema.json", _date(2000, 1, 1), per_group=1)
+    data = load_bytes_fast(text.encode("utf-8"), "template").data
     out: list[tuple[tuple[Any, ...], str]] = []
 
     def walk(value: Any, loc: tuple[Any, ...]) -> None:

@@ -129,6 +129,33 @@ def test_every_family_template_passes_check(tmp_path, run, test):
     assert any(f["kind"] == "template-text" for f in report["findings"])
 
 
+def test_placeholder_texts_do_not_depend_on_the_templates_size():
+    # check reads the template's texts without sizing its example design (a simulation for some
+    # families); what it compares must be every text of the template new writes
+    from datetime import date
+
+    from registry.checks import _ID_SENTINEL, _template_texts
+    from registry.commands.new import template
+    from registry.yamlio import load_bytes_fast
+
+    for test in family_names():
+        texts = dict(_template_texts(test))
+        for size in (1, 9_999):
+            data = load_bytes_fast(template(_ID_SENTINEL, test, None, "schema.json", date(2000, 1, 1),
+                                            per_group=size).encode(), "t").data
+            assert data["sample_size"]["per_group"] == size
+            for loc, text in texts.items():
+                value = data
+                for part in loc:
+                    value = value[part]
+                assert value == text
+    sized = load_bytes_fast(template(_ID_SENTINEL, "two-sample-t", None, "schema.json", date(2000, 1, 1)).encode(),
+                            "t").data
+    # without per_group the example design is sized: d = 4 / 5 = 0.8 needs 26 analysable units per group
+    # (Cohen 1988, Table 2.4.1, from memory), enrolled as ceil(26 / 0.9) = 29 for 10% attrition
+    assert sized["sample_size"]["per_group"] == 29
+
+
 @pytest.mark.parametrize("given, meant", [
     ("unpaired-t", "two-sample-t"),       # one edit from paired-t, but the opposite design
     ("independent-t", "two-sample-t"),

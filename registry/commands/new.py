@@ -75,7 +75,11 @@ def _alternative_line(test: str, effect: dict[str, object]) -> str:
     return "  alternative: two-sided   # or greater / less for a one-sided test\n"
 
 
-def template(spec_id: str, test: str, title: str | None, schema_ref: str, today: date | None = None) -> str:
+def template(spec_id: str, test: str, title: str | None, schema_ref: str, today: date | None = None, *,
+             per_group: int | None = None) -> str:
+    """The spec ``prespec new`` writes. ``per_group`` stands in for the planned size, which is otherwise
+    the example design's own (check's placeholder-text rule reads only the template's texts, and
+    sizing the example, by simulation for some families, would cost it time on every run)."""
     from ..power import design_from_params, get_family, solve_sample_size
     from ..power.verify import needs_verification, verified_sample_size
 
@@ -83,9 +87,11 @@ def template(spec_id: str, test: str, title: str | None, schema_ref: str, today:
     start = (today or date.today()) + timedelta(days=90)
     effect = dict(family.example)
     design = design_from_params(test, **effect, attrition=0.1)
-    # the same size check recomputes: simulation-verified where the family's formula is an approximation
-    sample = verified_sample_size(design) if needs_verification(design) else solve_sample_size(design)
-    planned = sample.enrolment_per_group
+    if per_group is None:
+        # the same size check recomputes: simulation-verified where the family's formula is an approximation
+        sample = verified_sample_size(design) if needs_verification(design) else solve_sample_size(design)
+        per_group = sample.enrolment_per_group
+    planned = per_group
     effect_lines = "\n".join(f"    {key}: {_yaml_scalar(value)}" for key, value in effect.items())
     shown_title = title or f"Title of the {spec_id} experiment"
     return f"""# yaml-language-server: $schema={schema_ref}
