@@ -59,6 +59,17 @@ def test_clustered_two_sample_t_is_sized_on_cluster_means():
     assert any("cluster means" in note for note in result.notes)
 
 
+def test_size_names_the_whole_clusters(run):
+    # 11 clusters of 10 per group (the test above); with attrition the enrol line names them instead
+    line = next(row for row in run("size", "two-sample-t", "--d", "0.5", "--cluster-size", "10",
+                                   "--cluster-icc", "0.05").out.splitlines() if "analysable" in row)
+    assert line.split(None, 1)[1] == "110 per group x 2 groups = 220 in total (11 clusters of 10 per group)"
+    out = run("size", "two-sample-t", "--d", "0.5", "--cluster-size", "10", "--cluster-icc", "0.05",
+              "--attrition", "0.1").out
+    assert "clusters of 10 per group)" not in next(row for row in out.splitlines() if "analysable" in row)
+    assert "13 clusters of 10" in next(row for row in out.splitlines() if row.strip().startswith("enrol"))
+
+
 def test_cluster_then_attrition_order():
     # documented order for a design-effect family: n x DE, then / (1 - attrition), then whole clusters
     plain = sample_size("mann-whitney", d=0.5).n_per_group

@@ -678,7 +678,15 @@ def _print_human(design: DesignBase, result: SampleSize | PowerAtN, sim: Simulat
     rows: list[tuple[str, str]] = []
     rows.append(("effect", _effect_line(design, result)))
     rows.append(("assumptions", _assumptions(design, len(result.group_sizes))))
-    rows.append(("analysable", _sizes(result.group_sizes, result.unit)))
+    analysable = _sizes(result.group_sizes, result.unit)
+    clusters = result.clusters_per_group if isinstance(result, SampleSize) else None
+    if clusters and result.enrolment_total == result.n_total and design.cluster is not None:
+        # whole clusters, all analysed (with attrition the enrol line names the clusters to enrol)
+        if len(set(clusters)) == 1:
+            analysable += f" ({clusters[0]:,} clusters of {design.cluster.size} per group)"
+        else:
+            analysable += f" ({' + '.join(f'{k:,}' for k in clusters)} clusters of {design.cluster.size})"
+    rows.append(("analysable", analysable))
     if isinstance(result, SampleSize) and (result.enrolment_total != result.n_total):
         rows.append(("enrol", _enrolment(design, result)))
     elif design.attrition > 0:  # power at a given n: the n is what remains after attrition
