@@ -380,12 +380,15 @@ class Repository:
                 out.append(record[3:].decode("utf-8", "surrogateescape"))
         return out
 
-    def head_blobs(self) -> dict[str, str] | None:
-        """Every file in HEAD's tree by path, with its blob id (one ``git ls-tree -r``); ``None`` in a
-        repository without commits. What :meth:`matches_head` asks for one file, for all of them."""
+    def head_blobs(self, folder: str) -> dict[str, str] | None:
+        """The files directly in ``folder`` (a path from the repository root, ``""`` for the root) in
+        HEAD's tree, by name, with their blob ids: one ``git ls-tree`` of ``HEAD:<folder>``, which names
+        the folder literally (no pathspec patterns) and lists it alone, never the whole tree.
+        ``None`` in a repository without commits; :class:`GitProblem` when HEAD has no such folder
+        (or git fails). What :meth:`matches_head` asks for one file, for a folder's files at once."""
         if self.head() is None:
             return None
-        listing = self._run("ls-tree", "-r", "-z", "--full-tree", "HEAD", stdout_as_string=False)
+        listing = self._run("ls-tree", "-z", f"HEAD:{folder}" if folder else "HEAD", stdout_as_string=False)
         blobs = {}
         for record in listing.split(b"\0"):  # type: ignore[union-attr]
             meta, _, found = record.partition(b"\t")

@@ -384,3 +384,34 @@ def test_a_size_too_large_to_simulate_keeps_the_formula_and_check_says_so(tmp_pa
     assert "noncentral-t approximation" in warned[0]["message"] and "was not here" in warned[0]["message"]
     assert any("exceed prespec's budget" in f["message"] and "12 clusters" in f["message"] for f in spec["findings"])
     assert spec["required_per_group"] == 60  # the formula's 6 clusters of 10
+
+
+# ---------------------------------------------------------------- fisher-exact randomised in clusters
+
+
+def test_fisher_exact_in_clusters_is_analysed_and_sized_as_two_proportions_in_clusters(tmp_path):
+    # Fisher's test on the pups would ignore the litters: a clustered fisher-exact design has the same
+    # cluster-level analysis, so the same simulated size, as a clustered two-proportions design
+    kwargs = {"p1": 0.3, "p2": 0.7, "cluster": {"size": 10, "icc": 0.1}}
+    fisher = design_from_params("fisher-exact", **kwargs)
+    proportions = design_from_params("two-proportions", **kwargs)
+    assert needs_verification(fisher)
+    a = verified_sample_size(fisher, reps=4000, cache_dir=tmp_path)
+    b = verified_sample_size(proportions, reps=4000, cache_dir=tmp_path)
+    assert (a.n_per_group, a.clusters_per_group, a.achieved_power) == (b.n_per_group, b.clusters_per_group,
+                                                                       b.achieved_power)
+    assert a.label == "simulation" and a.start_method == b.start_method
+    # the same simulator and streams decide both
+    assert simulated_power(fisher, 60, reps=2000, seed=5).power == simulated_power(proportions, 60, reps=2000,
+                                                                                   seed=5).power
+    assert any("Fisher's exact test on the units, which ignores the clusters, is not the analysis" in note
+               for note in a.notes)
+    assert "Hayes" in fisher.family.references(fisher) and "Fisher, R. A." in fisher.family.references(fisher)
+
+
+def test_check_of_a_clustered_fisher_design_has_no_design_effect_warning(tmp_path, run):
+    text = LITTERS.format(method="", planned=60).replace("test: two-proportions", "test: fisher-exact")
+    (tmp_path / "litter-weaning.yaml").write_text(text, encoding="utf-8")
+    spec = run("check", tmp_path, "--json").json()["specs"][0]
+    assert "approximate-size" not in {f["kind"] for f in spec["findings"]}
+    assert spec["required_per_group"] == 60 and spec["verdict"] == "ok"

@@ -490,11 +490,17 @@ def test_file_facts_of_many_files_are_what_each_file_gives_alone(tmp_path):
     with repo.config_writer() as config:
         config.set_value("user", "name", "Lab Member")
         config.set_value("user", "email", "member@example.org")
-    names = ["same.yaml", "edited.yaml", "sub folder/dosé.yaml", "untracked.yaml"]
+    (lab / "[ab]").mkdir()
+    (lab / "new folder").mkdir()
+    # a folder named like a pathspec pattern, and files its pattern would match, must be read literally
+    names = ["same.yaml", "edited.yaml", "sub folder/dosé.yaml", "[ab]/x.yaml", "untracked.yaml",
+             "new folder/y.yaml"]
+    (lab / "a").mkdir()
+    (lab / "a" / "x.yaml").write_text("id: other\n", encoding="utf-8")
     for name in names:
         (lab / name).write_text(f"id: {len(name)}\n", encoding="utf-8")
-    repo.index.add(names[:3])
-    repo.index.commit("three specs")
+    repo.index.add(names[:4] + ["a/x.yaml"])
+    repo.index.commit("four specs")
     (lab / "edited.yaml").write_text("id: changed\n", encoding="utf-8")
     empty = tmp_path / "empty"
     empty.mkdir()
@@ -509,7 +515,7 @@ def test_file_facts_of_many_files_are_what_each_file_gives_alone(tmp_path):
 
     facts = file_facts(paths)
     assert facts == {path: alone(path) for path in paths}
-    assert [facts[path].modified for path in paths] == [False, True, False, True, True]
+    assert [facts[path].modified for path in paths] == [False, True, False, False, True, True, True]
     assert facts[lab / "sub folder/dosé.yaml"].relative == "sub folder/dosé.yaml"
 
 

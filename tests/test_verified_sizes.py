@@ -279,25 +279,26 @@ def test_unequal_cluster_sizes_are_verified_by_a_clustered_simulation(tmp_path):
 
 def test_check_warns_that_a_design_effect_size_is_an_unverified_approximation(tmp_path):
     text = textwrap.dedent("""\
-        id: litter-weaning
-        title: Weaning success in two housing conditions, pups in litters
+        id: cage-lesions
+        title: Skin lesions per mouse in two bedding types, mice in cages
         status: draft
         data_collection:
           start: 2028-01-01
         design:
-          test: fisher-exact
+          test: poisson-rate
           effect:
-            p1: 0.5
-            p2: 0.8
+            rate1: 2.0
+            rate2: 1.5
+            exposure: 1.0
           cluster:
             size: 6
             icc: 0.1
         sample_size:
           per_group: 60
         """)
-    path = tmp_path / "litter-weaning.yaml"
+    path = tmp_path / "cage-lesions.yaml"
     path.write_text(text, encoding="utf-8")
-    report = check_file(SpecFile(path=path, display="litter-weaning.yaml", root=tmp_path))
+    report = check_file(SpecFile(path=path, display="cage-lesions.yaml", root=tmp_path))
     assert report.sample.label == "design-effect approximation"
     finding = next(f for f in report.findings if f.kind == "approximate-size" and f.field == "design.cluster")
     assert finding.severity == "warning" and "not verified" in finding.message and "design effect 1.5" in finding.message

@@ -327,7 +327,7 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     except WriteRefused as error:
         print(plain_text(f"prespec: error: {error}; nothing was written"), file=sys.stderr)
         return 1
-    facts = file_facts([path for _, path in jobs]) if all_specs else {}  # git asked once per repository
+    facts = file_facts([path for _, path in jobs]) if all_specs else {}  # git asked once per folder
     summaries = _Workers(lambda index: build_summary(*jobs[index], rendered_at, index_link=all_specs,
                                                      facts=facts.get(jobs[index][1])), len(jobs))
     built = summaries.results()

@@ -9,6 +9,7 @@ from pydantic import field_validator, model_validator
 
 from .base import DesignBase, EffectBase, Family, fraction_validator, locked
 from .binary_tables import EXACT_CELLS, enumeration_cells, exact_power, rejects
+from .cluster_proportions import ClusterProportions
 from .two_proportions import cohens_h, proportion_for_h, tails_for, z_test_tails
 
 __all__ = ["FisherExact", "FisherPair"]
@@ -32,7 +33,7 @@ class FisherPair(EffectBase):
         return self
 
 
-class FisherExact(Family):
+class FisherExact(ClusterProportions, Family):
     """Exact power of Fisher's exact test comparing two independent proportions.
 
     Group 1 (control, ``p1``) has ``n1`` units, group 2 (treatment, ``p2``) has ``n2 = ceil(r n1)``.
@@ -46,6 +47,11 @@ class FisherExact(Family):
     normal formula of Fleiss, Tytun & Ury (1980), a close approximation for Fisher's test.
 
     The standardized effect is Cohen's ``h = 2 asin sqrt(p2) - 2 asin sqrt(p1)``.
+
+    **Randomised in clusters** (``design.cluster``: litters, cages), Fisher's test on the units would
+    ignore the clusters; the analysis is the pooled two-sample t-test on the cluster proportions, as
+    for ``two-proportions`` (:class:`registry.power.cluster_proportions.ClusterProportions`), and the
+    size is the same.
 
     References: Fisher, R. A. (1935). The logic of inductive inference. *Journal of the Royal
     Statistical Society*, 98(1), 39-82. Casagrande, J. T., Pike, M. C., & Smith, P. G. (1978). An
@@ -78,6 +84,7 @@ class FisherExact(Family):
     min_n = 2
     monotone = False
     scan_floor = 0.5
+    not_run_with_clusters = "Fisher's exact test on the units, which ignores the clusters, is not the analysis"
     effect_model = FisherPair
     example = {"p1": 0.1, "p2": 0.6}
     distributions = ("binary",)
@@ -88,7 +95,9 @@ class FisherExact(Family):
     def _p2(self, design: DesignBase, effect_size: float | None) -> float:
         return design.effect.p2 if effect_size is None else proportion_for_h(design.effect.p1, effect_size)
 
-    def formula(self, design: DesignBase) -> str:
+    def formula(self, design: DesignBase) -> str | None:
+        if design.cluster is not None:  # the cluster-level power is its own formula, started from directly
+            return None
         return "normal approximation with continuity correction (Fleiss, Tytun & Ury 1980)"
 
     def power(self, design: DesignBase, n: np.ndarray, effect_size: float | None = None) -> np.ndarray:
@@ -105,6 +114,8 @@ class FisherExact(Family):
         return out
 
     def enumeration_cost(self, design: DesignBase, n: float) -> float:
+        if design.cluster is not None:  # the cluster-level power enumerates nothing
+            return 0.0
         m1 = int(n)
         m2 = math.ceil(design.allocation_ratio * m1 - 1e-9)
         return enumeration_cells("fisher", m1, m2, design.effect.p1, design.effect.p2)

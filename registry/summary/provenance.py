@@ -62,31 +62,34 @@ class FileFacts:
 
 
 def file_facts(paths: list[Path]) -> dict[Path, FileFacts]:
-    """:class:`FileFacts` of many spec files, asking git once per repository (``render --all``): one
-    repository lookup per folder and one listing of HEAD's blobs per repository, where one spec at a
-    time costs two git processes each. The answers are those :func:`provenance` finds alone."""
+    """:class:`FileFacts` of many spec files, asking git once per folder (``render --all``): one
+    repository lookup and one listing of the folder in HEAD for each folder the files are in, where
+    one spec at a time costs two git processes and a repository object each. The answers are those
+    :func:`provenance` finds alone."""
     import hashlib
+    import posixpath
 
-    roots: dict[Path, Any] = {}
-    heads: dict[Path, dict[str, str] | None] = {}
+    repos: dict[Path, Any] = {}
+    listed: dict[tuple[Path, str], dict[str, str] | None] = {}
     facts = {}
     for path in paths:
         where = Path(path).absolute()
         folder = where if where.is_dir() else where.parent
-        if folder not in roots:
-            roots[folder] = find_repository(where)
-        repo = roots[folder]
+        if folder not in repos:
+            repos[folder] = find_repository(where)
+        repo = repos[folder]
         relative = repo.relpath(path) if repo is not None else None
         if repo is None or relative is None:
             facts[path] = FileFacts(relative, False)
             continue
-        if repo.root not in heads:
+        inside, name = posixpath.split(relative)
+        if (repo.root, inside) not in listed:
             try:
-                heads[repo.root] = repo.head_blobs()
+                listed[repo.root, inside] = repo.head_blobs(inside)
             except GitProblem:
-                heads[repo.root] = None  # cannot tell: never claim a summary matches a commit
-        blobs = heads[repo.root]
-        committed = blobs.get(relative) if blobs is not None else None
+                listed[repo.root, inside] = None  # not in HEAD, or git could not tell: never "identical"
+        blobs = listed[repo.root, inside]
+        committed = blobs.get(name) if blobs is not None else None
         try:
             raw = Path(path).read_bytes()
         except OSError:
