@@ -415,3 +415,12 @@ def test_check_of_a_clustered_fisher_design_has_no_design_effect_warning(tmp_pat
     spec = run("check", tmp_path, "--json").json()["specs"][0]
     assert "approximate-size" not in {f["kind"] for f in spec["findings"]}
     assert spec["required_per_group"] == 60 and spec["verdict"] == "ok"
+
+
+def test_the_summary_says_how_many_clusters_are_needed(tmp_path, run):
+    (tmp_path / "litter-weaning.yaml").write_text(LITTERS.format(method="", planned=60), encoding="utf-8")
+    result = run("render", "litter-weaning", "--registry", tmp_path, "--no-history")
+    assert result.status == 0, result.err
+    text = " ".join(result.out.split())
+    assert "At least 60 analysable units per group (6 clusters of 10 per group; 120 in total) are needed" in text
+    assert "pooled two-sample t-test on the cluster proportions" in text

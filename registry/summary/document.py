@@ -352,7 +352,12 @@ def _justification(report: SpecReport) -> str:
     counted = _counted(family)
     total = f" ({_num(sample.n_total)} in total)" if sample.n_total != sample.n_per_group else ""
     simulated = "simulated " if sample.verification is not None else ""
-    sentences.append(f"At least {_num(sample.n_per_group)} analysable {counted}{total} are needed, which gives a "
+    # whole clusters, all analysed, are said here (with attrition the enrolment sentence names them)
+    needed = total
+    if sample.clusters_per_group and not design.attrition and len(set(sample.clusters_per_group)) == 1:
+        needed = f" ({sample.clusters_per_group[0]:,} clusters of {sample.cluster_size} per group"
+        needed += f"; {_num(sample.n_total)} in total)" if total else ")"
+    sentences.append(f"At least {_num(sample.n_per_group)} analysable {counted}{needed} are needed, which gives a "
                      f"{simulated}power of {sample.achieved_power:.3f}.")
     if design.attrition:
         enrolled_total = f" ({_num(sample.enrolment_total)} in total)" if sample.n_total != sample.n_per_group else ""
