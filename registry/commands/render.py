@@ -176,11 +176,6 @@ class _Workers:
         finally:
             gc.unfreeze()  # the workers have forked (all at the first submit, with "fork")
 
-    @property
-    def started(self) -> bool:
-        """Whether workers were given the work (else :meth:`results` computes it here)."""
-        return bool(self._chunks)
-
     def results(self) -> Iterator[Any]:
         """Every result in order: the workers', and here what they could not give."""
         from concurrent.futures import CancelledError
@@ -288,7 +283,6 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
     spec_files, reports, skipped = check_registry(spec_files, config_for)
     if skipped and all_specs:
         print(skipped_line(skipped), file=sys.stderr)
-
     if history:
         add_history(reports, spec_files, registry, config_for)
     else:  # the summaries still name each spec's registration tags: list them once, not once per spec

@@ -18,8 +18,8 @@ from .htmlpage import insert_figure, markdown_to_html, page
 from .numbers import analysable, power_curve
 from .provenance import FileFacts, Provenance, file_facts, iso_utc, provenance, render_time
 
-__all__ = ["Summary", "build_summary", "summary_figure", "file_facts", "build_index", "IndexRow", "drift_verdict", "render_time", "Provenance",
-           "SITE_FILES", "page_stem"]
+__all__ = ["Summary", "build_summary", "summary_figure", "file_facts", "build_index", "IndexRow", "drift_verdict",
+           "render_time", "Provenance", "SITE_FILES", "page_stem"]
 
 
 @dataclass(frozen=True)

@@ -69,7 +69,7 @@ class _Canvas:
     Building a matplotlib figure (axes, ticks, text objects) costs several times what saving it
     does, so the figure is built once and each curve only updates the artists' data, labels and
     limits. The SVG depends on those alone (ids come from ``svg.hashsalt`` and the content), so a
-    figure is byte-for-byte the one a fresh figure would give: ``tests/test_summary.py`` checks it.
+    figure is byte-for-byte the one a fresh figure would give: ``tests/test_render.py`` checks it.
     """
 
     def __init__(self) -> None:
