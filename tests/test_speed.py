@@ -200,3 +200,16 @@ def test_render_all_in_worker_processes_writes_what_one_process_writes(run, tmp_
     assert [p.name for p in one] == [p.name for p in pool] and len(one) > 20
     for a, b in zip(one, pool):
         assert a.read_text(encoding="utf-8") == b.read_text(encoding="utf-8"), a.name
+
+
+def test_a_command_leaves_the_garbage_collector_as_it_found_it(run):
+    # main() collects less often while a command runs; a program calling it keeps its own settings
+    import gc
+
+    before = gc.get_threshold()
+    gc.set_threshold(123, 4, 5)
+    try:
+        assert run("size", "two-sample-t", "--d", "0.5").status == 0
+        assert gc.get_threshold() == (123, 4, 5)
+    finally:
+        gc.set_threshold(*before)

@@ -150,7 +150,7 @@ class _Workers:
     def __init__(self, work: Callable[[int], Any], count: int) -> None:
         import multiprocessing
 
-        self._work, self._count, self._pool = work, count, None
+        self._work, self._count, self._pool, self._frozen = work, count, None, False
         self._chunks: list[tuple[int, int, Any]] = []  # (first index, end, future)
         workers = min(os.cpu_count() or 1, count)
         if count < POOL_FROM or workers < 2 or "fork" not in multiprocessing.get_all_start_methods():
@@ -161,8 +161,10 @@ class _Workers:
         size = max(1, min(8, count // (8 * workers)))
         # The workers share this process's memory until they write to it; frozen, the inherited
         # objects are left out of the workers' garbage collections, which would otherwise write to
-        # (and so copy) every page holding one.
+        # (and so copy) every page holding one. Here they stay frozen until close(): the reports
+        # and histories live until then anyway, and full collections need not walk them again.
         gc.freeze()
+        self._frozen = True
         try:
             self._pool = ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork"),
                                              initializer=_ignore_interrupts)
@@ -173,8 +175,6 @@ class _Workers:
         except (OSError, RuntimeError):  # e.g. no shared memory for the pool's queues: computed here instead
             self.close()
             self._chunks = []
-        finally:
-            gc.unfreeze()  # the workers have forked (all at the first submit, with "fork")
 
     def results(self) -> Iterator[Any]:
         """Every result in order: the workers', and here what they could not give."""
@@ -199,6 +199,9 @@ class _Workers:
         if self._pool is not None:
             self._pool.shutdown(wait=False, cancel_futures=True)
             _WORK.clear()
+        if self._frozen:
+            gc.unfreeze()
+            self._frozen = False
         self._pool = None
 
 
