@@ -424,3 +424,14 @@ def test_the_summary_says_how_many_clusters_are_needed(tmp_path, run):
     text = " ".join(result.out.split())
     assert "At least 60 analysable units per group (6 clusters of 10 per group; 120 in total) are needed" in text
     assert "pooled two-sample t-test on the cluster proportions" in text
+    # the z test's settings are not part of the effect a cluster-level analysis detects
+    assert "The effect to detect is p1 of 0.3 and p2 of 0.7," in text and "method of pooled" not in text
+
+
+def test_size_leaves_the_z_test_settings_out_of_a_clustered_effect(run):
+    def effect_line(*extra: str) -> str:
+        out = run("size", "two-proportions", "--p1", "0.3", "--p2", "0.5", *extra).out
+        return next(row for row in out.splitlines() if row.strip().startswith("effect")).split(None, 1)[1]
+
+    assert effect_line("--cluster-size", "8", "--cluster-icc", "0.1") == "h = 0.4115 (from p1 0.3, p2 0.5)"
+    assert "method pooled" in effect_line()  # without clusters the z test's settings are the analysis's

@@ -584,7 +584,9 @@ def _g(value: float) -> str:
 
 
 def _effect_line(design: DesignBase, result: SampleSize | PowerAtN) -> str:
-    given = {k: v for k, v in design.effect.model_dump(exclude_none=True).items() if k != result.symbol}
+    unused = design.family.unused_effect_fields(design)
+    given = {k: v for k, v in design.effect.model_dump(exclude_none=True).items()
+             if k != result.symbol and k not in unused}
     text = f"{result.symbol} = {_g(result.effect_size)}"
     if given:
         # structured fields (factors, profiles of means) in the family's own words, as the summary shows them

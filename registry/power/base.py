@@ -407,6 +407,12 @@ class Family(ABC):
         """Express a standardized effect in the design's natural units where it has them."""
         return {self.symbol: effect_size}
 
+    def unused_effect_fields(self, design: DesignBase) -> frozenset[str]:
+        """Fields of ``design.effect`` the analysis of this design does not use (the individual-level
+        test's settings of a design analysed on cluster summaries): ``size`` and the summary leave
+        them out of the effect they describe."""
+        return frozenset()
+
     def effect_text(self, name: str, value: Any) -> str | None:
         """How the summary shows the value of effect field ``name`` when plain number formatting does not
         read well (structured fields); None for the default."""

@@ -264,6 +264,10 @@ class TwoProportions(ClusterProportions, Family):
 
     # ---------------------------------------------------------------- randomised in clusters
 
+    def unused_effect_fields(self, design: DesignBase) -> frozenset[str]:
+        """The z test's settings, with a cluster block (the analysis is the t-test on cluster proportions)."""
+        return frozenset({"method", "continuity_correction"}) if design.cluster is not None else frozenset()
+
     def check_direction(self, design: DesignBase, effect_size: float) -> None:
         """Also refuse the individual-level z-test settings with a cluster block: the analysis of a
         clustered design is the t-test on the cluster proportions, which has neither."""

@@ -265,7 +265,9 @@ def _effect_phrase(report: SpecReport) -> str:
     assert spec is not None and report.sample is not None
     effect, family = spec.design.effect, spec.design.family
     unit = _outcome_unit(report)
-    stated = [(n, getattr(effect, n)) for n in type(effect).model_fields if getattr(effect, n) is not None]
+    unused = family.unused_effect_fields(spec.design)
+    stated = [(n, getattr(effect, n)) for n in type(effect).model_fields
+              if getattr(effect, n) is not None and n not in unused]
     es = f"{md.inline(family.symbol)} = {report.sample.effect_size:.3g}"
     natural = [(n, v) for n, v in stated if n != family.symbol]
     if not natural:
