@@ -70,6 +70,15 @@ def test_size_names_the_whole_clusters(run):
     assert "13 clusters of 10" in next(row for row in out.splitlines() if row.strip().startswith("enrol"))
 
 
+def test_design_effect_note_shows_the_unequal_size_formula():
+    # Eldridge, Ashby & Kerry (2006): DE = 1 + ((1 + cv^2) m - 1) icc, from memory; m 10, icc 0.05,
+    # cv 0.5: 1 + 11.5 x 0.05 = 1.575 (the note used to print the equal-size formula beside this value)
+    result = sample_size("mann-whitney", d=0.5, cluster={"size": 10, "icc": 0.05, "size_cv": 0.5})
+    note = next(n for n in result.notes if n.startswith("randomised in clusters"))
+    assert "design effect 1 + ((1 + 0.5^2) x 10 - 1) x 0.05 = 1.575" in note
+    assert "coefficient of variation 0.5" in note
+
+
 def test_cluster_then_attrition_order():
     # documented order for a design-effect family: n x DE, then / (1 - attrition), then whole clusters
     plain = sample_size("mann-whitney", d=0.5).n_per_group

@@ -122,6 +122,24 @@ class Cluster(BaseModel):
         return round(1 + ((1 + self.size_cv**2) * self.size - 1) * self.icc, 12)
 
     @property
+    def described(self) -> str:
+        """The clustering in words, as the notes begin.
+
+        >>> Cluster(size=10, icc=0.05, size_cv=0.5).described
+        'randomised in clusters of 10 with intracluster correlation 0.05 and cluster sizes varying with coefficient of variation 0.5'
+        """
+        cv = f" and cluster sizes varying with coefficient of variation {self.size_cv:g}" if self.size_cv else ""
+        return f"randomised in clusters of {self.size} with intracluster correlation {self.icc:g}{cv}"
+
+    @property
+    def design_effect_formula(self) -> str:
+        """:attr:`design_effect` with the numbers in: ``1 + (10 - 1) x 0.05``, or with unequal sizes
+        ``1 + ((1 + 0.5^2) x 10 - 1) x 0.05``."""
+        if self.size_cv:
+            return f"1 + ((1 + {self.size_cv:g}^2) x {self.size} - 1) x {self.icc:g}"
+        return f"1 + ({self.size} - 1) x {self.icc:g}"
+
+    @property
     def mean_variance(self) -> float:
         """Variance of one cluster's mean outcome, in units of the outcome's variance:
         ``icc + (1 - icc) / m`` (``= design effect / m``); with unequal sizes ``icc + (1 - icc)(1 + cv^2) / m``,
@@ -497,13 +515,12 @@ class Family(ABC):
         """The note saying how a clustered design is analysed and sized."""
         c = design.cluster
         assert c is not None
-        cv = f" and cluster sizes varying with coefficient of variation {c.size_cv:g}" if c.size_cv else ""
         return (
-            f"randomised in clusters of {c.size} with intracluster correlation {c.icc:g}{cv}: the test is run on "
+            f"{c.described}: the test is run on "
             f"the cluster means, a t-test with k1 + k2 - 2 degrees of freedom for k1 and k2 clusters, each mean "
             f"with variance {c.mean_variance:.4g} x the outcome's variance (design effect {c.design_effect:.4g} "
             "/ cluster size); enrolment is then allowed for attrition and rounded up to whole clusters"
-            + ("; with unequal sizes the cluster means' variance is a first-order approximation" if cv else "")
+            + ("; with unequal sizes the cluster means' variance is a first-order approximation" if c.size_cv else "")
         )
 
     def references(self, design: DesignBase) -> str:

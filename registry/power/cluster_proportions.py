@@ -72,9 +72,8 @@ class ClusterProportions:
     def cluster_note(self, design: DesignBase) -> str:
         c = design.cluster
         assert c is not None
-        cv = f" and cluster sizes varying with coefficient of variation {c.size_cv:g}" if c.size_cv else ""
         return (
-            f"randomised in clusters of {c.size} with intracluster correlation {c.icc:g}{cv}: the analysis is "
+            f"{c.described}: the analysis is "
             f"the {self.cluster_analysis(design)}, one proportion per cluster (its count over its units), on "
             f"k1 + k2 - 2 degrees of freedom for k1 and k2 clusters; {self.not_run_with_clusters}. Each cluster "
             f"proportion has variance p (1 - p) x "

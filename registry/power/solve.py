@@ -133,8 +133,8 @@ def _shared_notes(design: DesignBase) -> list[str]:
     elif design.cluster is not None:
         c = design.cluster
         notes.append(
-            f"randomised in clusters of {c.size} with intracluster correlation {c.icc:g}: the individual-level n "
-            f"is multiplied by the design effect 1 + ({c.size} - 1) x {c.icc:g} = {design.design_effect:.4g}, "
+            f"{c.described}: the individual-level n "
+            f"is multiplied by the design effect {c.design_effect_formula} = {design.design_effect:.4g}, "
             "then enrolment is allowed for attrition and rounded up to whole clusters. The design effect assumes "
             "many clusters; with few clusters per group a cluster-level analysis has fewer degrees of freedom "
             "and somewhat less power"
