@@ -23,6 +23,10 @@ Z975 = float(-special.ndtri(0.025))
         (4.0, 0.5, 5.0, 64, None),
         (1.0, 3.0, 2.0, 10, None),
         (-2.0, 1.0, 4.0, 40, None),
+        # a prior 20 times wider than the power curve (the step follows the curve) and one 30 times
+        # narrower (the fewest intervals apply), same closed form
+        (0.5, 2.0, 1.0, 800, None),
+        (3.0, 0.05, 5.0, 12, None),
     ],
 )
 def test_quadrature_matches_the_closed_form_for_a_normal_prior_and_known_sd(mean, prior_sd, sigma, n, expected_z):
@@ -61,6 +65,34 @@ def test_sd_prior_matches_an_independent_double_integral():
 
     reference, _ = quad.dblquad(integrand, 4.0 - 12 * 1.5, 4.0 + 12 * 1.5, 1e-9, 80.0, epsabs=1e-9)
     assert assurance_of(design, n) == pytest.approx(reference, abs=1e-5)
+
+
+@pytest.mark.parametrize("df", [1, 2, 4, 5, 9, 24, 200, 5000])
+def test_sd_prior_quadrature_matches_adaptive_quadrature_to_1e7(df):
+    # reference: scipy.integrate.quad on the chi-square probability scale (adaptive, to 1e-12), of the
+    # exact directional t power at a known effect; the hardest corner is few df with a large n, where
+    # the power changes within a sliver of that scale
+    from registry.power.assurance import _directional
+
+    worst = 0.0
+    for n in (4, 40, 1000):
+        for difference in (2.0, 12.0, 24.0):
+            design = design_from_params("two-sample-t", difference=difference, sd=12.0,
+                                        assurance={"sd_prior": {"df": df}})
+            tested, family = _directional(design.as_tested()), design.family
+
+            def power_at(es, n=n, tested=tested, family=family):
+                return family.power(tested, np.full(np.shape(es), float(n)), es)
+
+            def at_probability(p, difference=difference, power_at=power_at):
+                chi = 2 * special.gammaincinv(df / 2, p) if p < 0.5 else special.chdtri(df, 1 - p)
+                return float(power_at(np.array([difference * math.sqrt(chi / df) / 12.0]))[0])
+
+            reference, _ = quad.quad(at_probability, 0, 1, epsabs=1e-13, epsrel=1e-12, limit=2000,
+                                     points=[1e-6, 1e-4, 1e-3, 0.01, 0.05, 0.2, 0.5, 0.8, 0.95, 0.99])
+            ours = integrate(power_at, difference, 0.0, 12.0, df, math.sqrt(2 / n))
+            worst = max(worst, abs(ours - reference))
+    assert worst < 1e-7
 
 
 def test_assurance_matches_a_seeded_simulation_of_the_t_test():

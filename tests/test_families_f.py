@@ -124,3 +124,16 @@ def test_many_measurements_stay_quick():
     independent = tr**2 / ((m - 1) * tr2)
     se = independent.std() / np.sqrt(len(independent))
     assert expected_epsilon(a, df) == pytest.approx(independent.mean(), abs=5 * se + 1e-3)
+
+
+@pytest.mark.parametrize("m", [1, 2, 3, 4, 7, 12, 40])
+def test_contrast_basis_is_scipys_helmert_basis(m):
+    # reference library: scipy.linalg.helmert(m, full=False), the orthonormal Helmert contrasts
+    from scipy.linalg import helmert
+
+    from registry.power.repeated_measures import contrast_basis
+
+    basis = contrast_basis(m)
+    np.testing.assert_allclose(basis, helmert(m, full=False), rtol=0, atol=1e-15)
+    np.testing.assert_allclose(basis @ basis.T, np.eye(m - 1), atol=1e-12)  # orthonormal rows
+    np.testing.assert_allclose(basis.sum(axis=1), 0.0, atol=1e-12)  # each row a contrast

@@ -21,7 +21,7 @@ from .conftest import EXAMPLES, ROOT
 from .test_hostile import GENERATED, SPECS, _valid
 
 #: Modules that take long to import and that --help and --version never need.
-HEAVY = ("scipy.stats", "scipy.optimize", "statsmodels", "matplotlib", "registry.summary", "registry.model",
+HEAVY = ("scipy.stats", "scipy.optimize", "scipy.linalg", "statsmodels", "matplotlib", "registry.summary", "registry.model",
          "registry.power", "pydantic", "git", "ruamel.yaml", "rich")
 
 _PROBE = """
@@ -57,12 +57,14 @@ def test_checking_t_test_designs_needs_scipy_special_only(tmp_path):
     assert "scipy.stats" not in loaded and "statsmodels" not in loaded and "matplotlib" not in loaded
     assert "registry.summary" not in loaded
     assert "scipy.optimize" not in loaded  # the minimum detectable effect's root comes from registry.power.roots
+    assert "scipy.linalg" not in loaded
 
 
 def test_checking_a_repeated_measures_design_needs_no_scipy_stats():
     # its F-test power and the critical value at the expected epsilon come from scipy.special's ufuncs
     loaded = _loaded_by(["check", "--no-history", "--no-cache", str(ROOT / "example_registry" / "cast-weekly-weights.yaml")])
     assert "scipy.stats" not in loaded and "statsmodels" not in loaded
+    assert "scipy.linalg" not in loaded  # the contrast basis is built with numpy (tests/test_families_e.py)
 
 
 def test_subcommand_help_still_lists_every_option(run):

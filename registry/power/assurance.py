@@ -7,8 +7,11 @@ units gives: ``sigma^2 = df s^2 / X`` with ``X ~ chi-square(df)``). Assurance is
 
     A(n) = E[ P(reject H0 in the planned direction | n, delta, sigma) ]
 
-computed by Simpson's rule over the effect and Gauss-Legendre quadrature over the
-chi-square probability scale, with the family's exact power. Only rejections in the planned
+computed by Simpson's rule over the effect and tanh-sinh (double-exponential) quadrature over
+the chi-square probability scale, with the family's exact power. (On that scale the integrand
+changes fastest at both ends, where Gauss-Legendre converges slowly: 48 of its nodes left errors
+up to 1e-4; 33 tanh-sinh nodes leave below 1e-7 from 5 degrees of freedom on, and 81 below 1e-7
+for 1 to 4, ``tests/test_assurance.py``.) Only rejections in the planned
 direction count (for a two-sided test: the tail of the planned effect at alpha / 2), so
 harmful effects in the prior never count as successes. With a known SD and a z-test the
 integral has the closed form ``Phi((m - z se) / sqrt(se^2 + s^2))`` (O'Hagan, Stevens & Campbell
@@ -17,13 +20,15 @@ integral has the closed form ``Phi((m - z se) / sqrt(se^2 + s^2))`` (O'Hagan, St
 References: O'Hagan, A., Stevens, J. W., & Campbell, M. J. (2005). Assurance in clinical trial
 design. *Pharmaceutical Statistics*, 4(3), 187-201. Spiegelhalter, D. J., Abrams, K. R., & Myles,
 J. P. (2004). *Bayesian Approaches to Clinical Trials and Health-Care Evaluation*, section 6.5.
-Chichester: Wiley.
+Chichester: Wiley. Takahasi, H., & Mori, M. (1974). Double exponential formulas for numerical
+integration. *Publications of the Research Institute for Mathematical Sciences*, 9(3), 721-741.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Any, Callable
 
 import numpy as np
@@ -38,7 +43,13 @@ __all__ = ["AssurancePlan", "EffectPrior", "SdPrior", "ASSURANCE_FAMILIES", "Ass
 ASSURANCE_FAMILIES = ("one-sample-t", "paired-t", "two-sample-t")
 
 _HERMITE = 64
-_LEGENDRE = 48
+#: Simpson's rule over the effect prior: its range in prior SDs each side and the fewest intervals
+#: (at most 1e-9 from a rule of 12 SDs each side and 4,000 intervals, over 300 random t-test designs)
+_PRIOR_SDS, _SIMPSON_MIN = 8, 80
+#: tanh-sinh nodes for the SD prior: the step in t (33 nodes; with fewer than 5 degrees of freedom
+#: the power can change within a sliver of the probability scale, so 81) and the half-width, where
+#: the outermost weights are below 1e-15 of the whole
+_TANH_SINH_STEP, _TANH_SINH_STEP_FEW_DF, _TANH_SINH_HALF_WIDTH = 0.2, 0.08, 3.2
 
 
 class EffectPrior(BaseModel):
@@ -103,9 +114,11 @@ def integrate(power_of: Callable[[np.ndarray], np.ndarray], effect_mean: float, 
     ``sd`` (``df`` None) or ``sigma^2 = df sd^2 / chi-square(df)``. ``power_of`` takes standardized effects.
 
     ``width`` is the standardized-effect scale over which power rises (about ``1 / sqrt(n)``): with
-    it the effect is integrated by Simpson's rule over 10 prior SDs each side on a step of at most a
-    quarter of that scale (power can rise much faster than the prior changes); without it by
-    64-point Gauss-Hermite quadrature.
+    it the effect is integrated by Simpson's rule over 8 prior SDs each side (the prior mass beyond
+    is 1e-15) on a step of at most a quarter of that scale (power can rise much faster than the
+    prior changes) and at least 80 intervals; without it by
+    64-point Gauss-Hermite quadrature. The SD prior is integrated over the chi-square probability
+    scale by tanh-sinh quadrature (:func:`_probability_nodes`).
 
     >>> from scipy.special import ndtr
     >>> round(integrate(lambda d: ndtr(d * 5 - 1.96), 0.5, 0.0, 1.0, None), 6) == round(float(ndtr(0.54)), 6)
@@ -114,8 +127,8 @@ def integrate(power_of: Callable[[np.ndarray], np.ndarray], effect_mean: float, 
     from scipy import special
 
     if effect_sd > 0 and width is not None:
-        lo, hi = effect_mean - 10 * effect_sd, effect_mean + 10 * effect_sd
-        m = int(min(max(math.ceil((hi - lo) / (width * sd / 4)), 200), 20_000))
+        lo, hi = effect_mean - _PRIOR_SDS * effect_sd, effect_mean + _PRIOR_SDS * effect_sd
+        m = int(min(max(math.ceil((hi - lo) / (width * sd / 4)), _SIMPSON_MIN), 20_000))
         m += m % 2
         deltas = np.linspace(lo, hi, m + 1)
         simpson = np.ones(m + 1)
@@ -130,13 +143,34 @@ def integrate(power_of: Callable[[np.ndarray], np.ndarray], effect_mean: float, 
     if df is None:
         sigmas, sw = np.array([sd]), np.array([1.0])
     else:
-        u, w = np.polynomial.legendre.leggauss(_LEGENDRE)
-        p = (u + 1) / 2
-        chi = special.chdtri(df, 1 - p)  # the chi-square quantile at p
-        sigmas, sw = sd * np.sqrt(df / chi), w / 2
+        p, q, sw = _probability_nodes(_TANH_SINH_STEP if df >= 5 else _TANH_SINH_STEP_FEW_DF)
+        # the chi-square quantile at p, from whichever tail keeps full precision
+        chi = np.where(p < 0.5, 2 * special.gammaincinv(df / 2, p), special.chdtri(df, q))
+        sigmas = sd * np.sqrt(df / chi)
     es = (deltas[:, None] / sigmas[None, :]).ravel()
     weights = (dw[:, None] * sw[None, :]).ravel()
     return float(np.asarray(power_of(es), dtype=float) @ weights)
+
+
+@lru_cache(maxsize=4)
+def _probability_nodes(step: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Tanh-sinh nodes on (0, 1): ``p = 1 / (1 + exp(-pi sinh t))`` at ``t = -3.2, -3.2 + step, ...,
+    3.2``, with ``q = 1 - p`` computed without cancellation and weights ``step pi cosh(t) p q``
+    (dp/dt times the step), Takahasi & Mori (1974). The weights sum to 1 within 1e-12.
+
+    >>> p, q, w = _probability_nodes(0.2)
+    >>> len(p), round(float(w.sum()), 12), bool(p[0] < 1e-16 and q[-1] < 1e-16)
+    (33, 1.0, True)
+    """
+    from scipy import special
+
+    t = np.linspace(-_TANH_SINH_HALF_WIDTH, _TANH_SINH_HALF_WIDTH, int(round(2 * _TANH_SINH_HALF_WIDTH / step)) + 1)
+    u = math.pi * np.sinh(t)
+    p, q = special.expit(u), special.expit(-u)
+    nodes = (p, q, step * math.pi * np.cosh(t) * p * q)
+    for array in nodes:  # shared by every call (cached): nobody may change them
+        array.setflags(write=False)
+    return nodes
 
 
 @dataclass(frozen=True)
@@ -149,7 +183,7 @@ class Assurance:
     limit: float
     target: float | None = None
     n_for_target: int | None = None
-    method: str = ("Simpson (effect prior) x Gauss-Legendre (SD prior) quadrature of the exact power, "
+    method: str = ("Simpson (effect prior) x tanh-sinh (SD prior) quadrature of the exact power, "
                    "rejections in the planned direction only")
 
     def to_dict(self) -> dict[str, Any]:

@@ -8,7 +8,7 @@ from typing import Literal
 
 import numpy as np
 from pydantic import field_validator, model_validator
-from scipy import linalg, special
+from scipy import special
 
 from .lazy import stats  # loaded on first use
 
@@ -23,9 +23,18 @@ Term = Literal["within", "between", "interaction", "change", "contrast"]
 
 
 def contrast_basis(m: int) -> np.ndarray:
-    """An orthonormal basis ((m - 1) x m) of the contrasts among m repeated measurements."""
-    helmert = linalg.helmert(m, full=False)
-    return np.asarray(helmert, dtype=float)
+    """An orthonormal basis ((m - 1) x m) of the contrasts among m repeated measurements: the rows
+    of the Helmert matrix below its first, row i comparing measurement i with the mean of those
+    before it (what ``scipy.linalg.helmert(m, full=False)`` gives; built here so that ``check``
+    does not import ``scipy.linalg`` for it).
+
+    >>> contrast_basis(3).round(4).tolist()
+    [[0.7071, -0.7071, 0.0], [0.4082, 0.4082, -0.8165]]
+    """
+    rows = np.arange(1, m, dtype=float)[:, None]  # row i (1..m-1) has i entries 1 then -i
+    columns = np.arange(m, dtype=float)[None, :]
+    helmert = np.where(columns < rows, 1.0, np.where(columns == rows, -rows, 0.0))
+    return helmert / np.sqrt(rows * (rows + 1))
 
 
 _DRAWS = 4000  # fixed draws for the expected Greenhouse-Geisser epsilon (common random numbers for every n)
