@@ -6,7 +6,9 @@ cache folder; never the working tree), written and read with the machinery of th
 (:class:`registry.diskcache.SizeCache`: temporary file and rename, a damaged entry is absent):
 
 - one per spec file: what ``check`` found in the file itself (validation, the recomputed size and
-  every per-file finding), keyed by the git blob id of its bytes, the prespec version, the file's
+  every per-file finding), keyed by the git blob id of its bytes, the prespec version and the
+  installed code (:func:`code_fingerprint`: a changed module between releases, say a development
+  install, makes every entry stale), the file's
   path and display name, the registry root and the settings that apply to it (``.prespec.yaml``,
   ``--oversize-margin``). An entry also records the pilot file a spec reads, by SHA-256 of its
   content: a changed, moved or removed pilot file makes the entry stale;
@@ -23,6 +25,7 @@ Registry-wide rules that are cheap (unique ids) are applied on every run, cached
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import json
 import os
@@ -38,7 +41,7 @@ from .diskcache import SizeCache, cache_key, default_cache_dir
 from .problems import InvalidSpec
 from .yamlio import read_spec_bytes
 
-__all__ = ["CheckCache", "CachedReport", "blob_id", "FOLDER"]
+__all__ = ["CheckCache", "CachedReport", "blob_id", "code_fingerprint", "FOLDER"]
 
 #: The cache folder's name under ``<git dir>/prespec/`` or the user cache folder.
 FOLDER = "check-cache"
@@ -54,6 +57,22 @@ def blob_id(raw: bytes) -> str:
     'e69de29bb2d1d6434b8b29ae775ad8c2e48c5391'
     """
     return hashlib.sha1(b"blob %d\0" % len(raw) + raw, usedforsecurity=False).hexdigest()
+
+
+@functools.lru_cache(maxsize=None)
+def code_fingerprint(package: Path = Path(__file__).resolve().parent) -> str:
+    """SHA-256 of the relative path, size and modification time of every file of the installed
+    package (``__pycache__`` left out): what ``check`` computes depends on the code as much as on
+    the spec, and the version number alone does not change while a development install does.
+    Statting the package's files costs well under a millisecond."""
+    digest = hashlib.sha256()
+    for path in sorted(package.rglob("*")):
+        relative = path.relative_to(package)
+        if "__pycache__" in relative.parts or not path.is_file():
+            continue
+        facts = path.stat()
+        digest.update(f"{relative.as_posix()}\0{facts.st_size}\0{facts.st_mtime_ns}\n".encode("utf-8", "replace"))
+    return digest.hexdigest()
 
 
 class _StoredHistory:
@@ -231,7 +250,8 @@ class CheckCache:
 
     def _file_key(self, spec_file: SpecFile, config: Any, blob: str) -> str:
         return cache_key("check-file", {
-            "format": _FORMAT, "blob": blob, "path": str(spec_file.path.absolute()), "display": spec_file.display,
+            "format": _FORMAT, "code": code_fingerprint(), "blob": blob, "path": str(spec_file.path.absolute()),
+            "display": spec_file.display,
             "root": str(spec_file.root.absolute()), "pilot_root": self._pilot_root(spec_file.root),
             "settings": self._settings(config),
         })
@@ -284,7 +304,8 @@ class CheckCache:
                 return None
             rows.append([report.path, str(spec_file.path.absolute()), blob, report.id, report.valid,
                          list(locked_for(spec_file))])
-        return cache_key("check-history", {"format": _FORMAT, "root": str(repo.root), "state": state,
+        return cache_key("check-history", {"format": _FORMAT, "code": code_fingerprint(), "root": str(repo.root),
+                                           "state": state,
                                            "today": today.isoformat(), "scopes": [str(s) for s in scopes],
                                            "members": rows})
 

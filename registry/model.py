@@ -139,6 +139,7 @@ class Spec(_Strict):
         allow_inf_nan=False,
         title="prespec experiment spec",
         json_schema_extra={"$id": SCHEMA_ID},
+        defer_build=True,
     )
 
     id: str = locked(

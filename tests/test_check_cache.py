@@ -57,6 +57,43 @@ def test_blob_id_is_gits_object_id(tmp_path):
     assert blob_id(path.read_bytes()) == expected.strip()
 
 
+def test_the_code_fingerprint_follows_every_file_of_the_package_but_its_bytecode(tmp_path):
+    # a development install keeps its version number while its code changes: every entry made by
+    # other code is stale
+    from registry.checkcache import code_fingerprint
+
+    package = tmp_path / "package"
+    (package / "power").mkdir(parents=True)
+    (package / "power" / "solve.py").write_text("N = 1\n", encoding="utf-8")
+    fingerprint = code_fingerprint.__wrapped__
+    first = fingerprint(package)
+    assert fingerprint(package) == first and len(first) == 64
+    (package / "__pycache__").mkdir()
+    (package / "__pycache__" / "solve.cpython-311.pyc").write_bytes(b"\0" * 16)
+    assert fingerprint(package) == first  # bytecode is written by running the code, not a change of it
+    (package / "power" / "solve.py").write_text("N = 22\n", encoding="utf-8")
+    changed = fingerprint(package)
+    assert changed != first
+    (package / "power" / "extra.py").write_text("", encoding="utf-8")
+    assert fingerprint(package) not in (first, changed)
+    assert code_fingerprint() == code_fingerprint()  # the installed package's, computed once per run
+
+
+def test_entries_made_by_other_code_are_not_used(run, lab, monkeypatch):
+    import registry.checkcache as checkcache
+
+    run("check", lab.registry, "--json")
+    from registry.diskcache import seal
+
+    for path in _entries(lab.root):  # as before: a run showing these messages read the cache
+        entry = json.loads(path.read_text(encoding="utf-8").replace("more than the", "MORE THAN THE"))
+        entry["seal"] = seal(entry["key"], entry["value"])
+        path.write_text(json.dumps(entry), encoding="utf-8")
+    assert "MORE THAN THE" in run("check", lab.registry, "--json").out
+    monkeypatch.setattr(checkcache, "code_fingerprint", lambda: "0" * 64)  # the package changed
+    assert "MORE THAN THE" not in run("check", lab.registry, "--json").out
+
+
 def test_a_cached_run_prints_what_a_cold_run_prints(run, lab):
     cold_json = run("check", lab.registry, "--json", "--no-cache")
     cold_text = run("check", lab.registry, "--no-cache")

@@ -60,12 +60,13 @@ def _yaml_scalar(value: object) -> str:
 
 def _alternative_line(test: str, effect: dict[str, object]) -> str:
     """The template's ``alternative`` line, or a comment where the family takes no explicit one."""
-    from ..power import design_from_params, get_family, solve_sample_size
+    from ..power import design_from_params, get_family
     from ..power.base import InfeasibleDesign
+    from ..power.solve import checked_effect
 
     family = get_family(test)
-    try:
-        solve_sample_size(design_from_params(test, **effect, alternative="two-sided", attrition=0.1))
+    try:  # the family's own checks of an explicit alternative, which sizing makes first (not the sizing)
+        checked_effect(design_from_params(test, **effect, alternative="two-sided", attrition=0.1))
     except InfeasibleDesign as error:
         if error.field == "design.alternative":
             return f"  # no 'alternative' here: the test is {family.sides(design_from_params(test, **effect))}\n"

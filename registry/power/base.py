@@ -80,9 +80,13 @@ def fraction_validator(name: str, *, low_closed: bool = False):
 
 
 class EffectBase(BaseModel):
-    """Base of every family's ``design.effect`` block: unknown keys are errors."""
+    """Base of every family's ``design.effect`` block: unknown keys are errors.
 
-    model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False)
+    ``defer_build``: the validators are built on first use, once, for the whole spec model, not
+    one by one as each family module is imported (half the cost; ``--help`` and commands that
+    validate nothing pay none of it)."""
+
+    model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False, defer_build=True)
 
 
 class Cluster(BaseModel):
@@ -182,7 +186,7 @@ class Multiplicity(BaseModel):
 class DesignBase(BaseModel):
     """Assumptions common to all design families (``design:`` in a spec)."""
 
-    model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False)
+    model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False, defer_build=True)  # as EffectBase
 
     #: The family this design model belongs to; the catalog builds one subclass per family and sets it.
     family_instance: ClassVar["Family | None"] = None

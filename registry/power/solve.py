@@ -11,8 +11,8 @@ from .roots import brentq
 from .base import MAX_N, DesignBase, EventsOnly, Family, InfeasibleDesign
 from .results import PowerAtN, SampleSize
 
-__all__ = ["smallest_n", "smallest_n_from_which", "solve_sample_size", "power_at", "power_of", "minimum_effect",
-           "enrolment"]
+__all__ = ["smallest_n", "smallest_n_from_which", "solve_sample_size", "checked_effect", "power_at", "power_of",
+           "minimum_effect", "enrolment"]
 
 _BLOCK = 8  # candidates evaluated at once around the normal-approximation start
 _SCAN_LIMIT = 5_000_000  # largest n a non-monotone family's exhaustive scan may reach
@@ -114,6 +114,13 @@ def _checked_effect(family: Family, design: DesignBase) -> float:
     es = family.effect_size(design)
     family.check_direction(design, es)
     return es
+
+
+def checked_effect(design: DesignBase) -> float:
+    """The standardized effect of ``design`` as tested, after the family's checks of the effect and its
+    direction: what :func:`solve_sample_size` refuses before any sizing (an explicit ``alternative``
+    where the family takes none, a one-sided alternative pointing the wrong way, a zero effect)."""
+    return _checked_effect(design.family, design.as_tested())
 
 
 def _shared_notes(design: DesignBase) -> list[str]:
