@@ -1,6 +1,7 @@
 """Ties git (registry/git.py) to the drift analysis (registry/history.py) for the commands.
 
-``check`` calls :func:`add_history`; ``history``, ``register`` and ``verify`` use
+``check`` calls :func:`add_history` (after :func:`prefetch_histories` when it checks files in
+worker processes); ``history``, ``register`` and ``verify`` use
 :func:`read_history` and :func:`find_spec`; a summary renderer can call
 :func:`provenance` for a spec's drift verdict, last commit and registration tag.
 """
@@ -24,7 +25,7 @@ from .history import Event, Snapshot, SnapshotStore, SpecHistory, UnreadableBlob
     spec_events, uncommitted_findings
 from .registration import InvalidRegistration, parse_block, tag_version
 
-__all__ = ["RegistryHistory", "read_history", "add_history", "HistoryStatus", "find_spec",
+__all__ = ["RegistryHistory", "read_history", "prefetch_histories", "add_history", "HistoryStatus", "find_spec",
            "registrations", "Registration", "worktree_snapshot", "spec_history", "add_registration_tags"]
 
 
@@ -103,6 +104,21 @@ def read_history(repo: Repository, known_paths: dict[str, str] | None = None) ->
             head_ids[spec_id] = (path, blob)
     return RegistryHistory(repo, repo.head(), repo.is_shallow(), store, spec_events(log, store, known), head_ids,
                            {sha: c.committer_date for sha, c in commits.items()}, commits, repo.detached())
+
+
+def prefetch_histories(paths: Sequence[str]) -> dict[Path, RegistryHistory]:
+    """:func:`read_history` of the repository of each of ``paths``, by root, for :func:`add_history`
+    to use: ``check`` reads them while worker processes check the spec files. A repository whose
+    history git cannot list is left out (:func:`add_history` reads it again and reports why)."""
+    out: dict[Path, RegistryHistory] = {}
+    for path in paths:
+        try:
+            repo = find_repository(Path(os.path.abspath(path)).resolve())
+            if repo is not None and repo.root not in out:
+                out[repo.root] = read_history(repo)
+        except (GitProblem, UsageError):  # no git, an unreadable history: add_history says so
+            continue
+    return out
 
 
 def spec_history(registry: RegistryHistory, spec_id: str, extra_locked: Sequence[str] = (), *,
@@ -196,11 +212,13 @@ def _in_scope(path: Path, scopes: Sequence[Path]) -> bool:
 
 def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequence[str],
                 config_for: Callable[[SpecFile], RegistryConfig] | None = None,
-                today: date | None = None, cache: Any = None) -> HistoryStatus:
+                today: date | None = None, cache: Any = None,
+                prefetched: dict[Path, RegistryHistory] | None = None) -> HistoryStatus:
     """Add history findings to each report whose file lies in a git repository (and a report for
     each spec deleted from HEAD or the working tree within ``paths``). ``cache`` (a
     :class:`registry.checkcache.CheckCache`) answers for a repository whose state and members are
-    those of a stored run, and keeps the results of the others."""
+    those of a stored run, and keeps the results of the others. ``prefetched``: histories already
+    read by :func:`prefetch_histories`, by repository root."""
     today = today or date.today()
     status = HistoryStatus()
     repos: dict[Path, tuple[Repository, list[tuple[SpecReport, SpecFile]]]] = {}
@@ -235,7 +253,8 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
             continue
         before = [len(report.findings) for report, _ in members]
         counts = (len(status.repositories), len(status.problems), len(reports))
-        _repository_history(repo, members, scopes, config_for, today, status, reports)
+        _repository_history(repo, members, scopes, config_for, today, status, reports,
+                            (prefetched or {}).get(root))
         if key is not None and len(status.repositories) > counts[0]:
             cache.history_put(repo, key, [(report.findings[n:], report.history)
                                           for (report, _), n in zip(members, before)],
@@ -245,13 +264,16 @@ def add_history(reports: list[SpecReport], files: list[SpecFile], paths: Sequenc
 
 def _repository_history(repo: Repository, members: list[tuple[SpecReport, SpecFile]], scopes: Sequence[Path],
                         config_for: Callable[[SpecFile], RegistryConfig] | None, today: date,
-                        status: HistoryStatus, reports: list[SpecReport]) -> None:
+                        status: HistoryStatus, reports: list[SpecReport],
+                        prefetched: RegistryHistory | None = None) -> None:
     """:func:`add_history` for one repository: findings on ``members``, new reports appended to ``reports``."""
     root = repo.root
     known = {rel: report.id for report, spec_file in members if report.id
              for rel in [repo.relpath(spec_file.path)] if rel}
     try:
-        registry = read_history(repo, known)
+        # a prefetched history is read without the working tree's ids, which only name unreadable versions
+        registry = prefetched if prefetched is not None and not prefetched.store.unreadable() \
+            else read_history(repo, known)
         all_tags = repo.tags("prespec")
     except GitProblem as error:
         status.problems.append(f"{root}: {error}")

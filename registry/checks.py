@@ -12,7 +12,7 @@ import re
 from collections import defaultdict
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Literal
+from typing import TYPE_CHECKING, Any, Callable, Iterator, Literal
 
 from .config import RegistryConfig
 from .discovery import SpecFile
@@ -492,22 +492,30 @@ _ID_SENTINEL = "template-spec-id"
 #: (ids, such as the hypothesis id H1, are names, never placeholders).
 _TEMPLATE_CHOICES = frozenset({"status", "data_collection.start", "design.test", "design.alternative",
                                "stopping_rule"})
+#: The template's design assumptions: numbers, choices (a distribution, a layout) and names (factors)
+#: that a lab may keep as they stand; they are the family's example, not placeholder prose.
+_TEMPLATE_ASSUMPTIONS = ("design", "effect")
+#: The family whose template stands for all: outside design.test, design.alternative and design.effect
+#: (left out above) every family's template has the same texts.
+_TEMPLATE_FAMILY = "two-sample-t"
 
 
 @functools.lru_cache(maxsize=None)
-def _template_texts(test: str) -> tuple[tuple[tuple[Any, ...], str], ...]:
-    """(path, text) of every placeholder text in the template ``prespec new`` writes for ``test``."""
+def _template_texts() -> tuple[tuple[tuple[Any, ...], str], ...]:
+    """(path, text) of every placeholder text in the template ``prespec new`` writes."""
     from datetime import date as _date
 
     from .commands.new import template
     from .yamlio import load_bytes_fast
 
     # per_group: any number (only the texts are read), so the example design is not sized
-    text = template(_ID_SENTINEL, test, None, "schema.json", _date(2000, 1, 1), per_group=1)
+    text = template(_ID_SENTINEL, _TEMPLATE_FAMILY, None, "schema.json", _date(2000, 1, 1), per_group=1)
     data = load_bytes_fast(text.encode("utf-8"), "template").data
     out: list[tuple[tuple[Any, ...], str]] = []
 
     def walk(value: Any, loc: tuple[Any, ...]) -> None:
+        if loc[:2] == _TEMPLATE_ASSUMPTIONS:
+            return
         if isinstance(value, dict):
             for key, child in value.items():
                 walk(child, (*loc, key))
@@ -526,7 +534,7 @@ def _template_text(report: SpecReport, spec: Spec) -> None:
     if report.document is None:
         return
     data = report.document.data
-    for loc, text in _template_texts(spec.design.test):
+    for loc, text in _template_texts():
         value: Any = data
         for part in loc:
             ok = isinstance(value, dict) and part in value if isinstance(part, str) else \
@@ -550,18 +558,19 @@ def not_a_spec(data: Any) -> bool:
     return isinstance(data, dict) and bool(data) and not any(key in Spec.model_fields for key in data)
 
 
-def check_registry(files: list[SpecFile], config_for: Any = None, executor: Any = None, cache: Any = None
-                   ) -> tuple[list[SpecFile], list[SpecReport], list[str]]:
+def check_registry(files: list[SpecFile], config_for: Any = None, executor: Any = None, cache: Any = None,
+                   meanwhile: Callable[[], None] | None = None) -> tuple[list[SpecFile], list[SpecReport], list[str]]:
     """Check the specs among ``files``: (files, reports, skipped) with files and reports aligned.
 
     Files a registry's ``include``/``exclude`` leave out are not read; YAML files that are plainly
     not specs (:func:`not_a_spec`) are set aside and their paths returned in ``skipped``. A file
     named on the command line is always checked. ``cache``: a :class:`registry.checkcache.CheckCache`
-    whose results are used for files it holds unchanged (and which keeps the rest).
+    whose results are used for files it holds unchanged (and which keeps the rest). ``meanwhile``:
+    see :func:`check_files`.
     """
     if config_for is not None:
         files = [f for f in files if f.named or f.refusal or config_for(f).selects(f.path)]
-    reports = check_files(files, config_for, executor, cache)
+    reports = check_files(files, config_for, executor, cache, meanwhile)
     kept_files, kept, skipped = [], [], []
     for spec_file, report in zip(files, reports):
         if [x.kind for x in report.findings] == ["not-a-spec"]:
@@ -583,23 +592,35 @@ def skipped_line(skipped: list[str]) -> str:
             ".prespec.yaml to say so")
 
 
-def check_files(files: list[SpecFile], config_for: Any = None, executor: Any = None, cache: Any = None
-                ) -> list[SpecReport]:
+#: From this many spec files to check (those the check cache does not answer for) on, they are
+#: checked in worker processes, one per core (:class:`registry.workers.ForkedWorkers`).
+POOL_FROM = 8
+
+
+def check_files(files: list[SpecFile], config_for: Any = None, executor: Any = None, cache: Any = None,
+                meanwhile: Callable[[], None] | None = None) -> list[SpecReport]:
     """Check every file, then the registry-wide rules (unique ids). ``executor`` (a
     ``concurrent.futures.Executor``) carries the simulations of simulation-verified sizes; ``cache``
-    (a :class:`registry.checkcache.CheckCache`) answers for files it holds unchanged."""
-    reports = []
-    for spec_file in files:
-        config = config_for(spec_file) if config_for else RegistryConfig()
-        if cache is None:
-            reports.append(check_file(spec_file, config, executor))
-            continue
-        found, raw = cache.lookup(spec_file, config)
-        if found is None:
-            found = check_file(spec_file, config, executor, raw)
-            if raw is not None:
-                cache.store(spec_file, config, raw, found)
-        reports.append(found)
+    (a :class:`registry.checkcache.CheckCache`) answers for files it holds unchanged. Without an
+    ``executor``, :data:`POOL_FROM` files or more to check are checked in worker processes (the
+    reports are the same as one process gives), and this process calls ``meanwhile`` while they
+    work (``check`` reads the git history then)."""
+    configs = [config_for(spec_file) if config_for else RegistryConfig() for spec_file in files]
+    found: list[SpecReport | None] = [None] * len(files)
+    todo: list[tuple[int, bytes | None]] = []  # (index, the bytes the cache hashed, if any)
+    for index, (spec_file, config) in enumerate(zip(files, configs)):
+        if cache is not None:
+            found[index], raw = cache.lookup(spec_file, config)
+            if found[index] is not None:
+                continue
+            todo.append((index, raw))
+        else:
+            todo.append((index, None))
+    for (index, raw), report in zip(todo, _checked(files, configs, todo, executor, meanwhile)):
+        found[index] = report
+        if cache is not None and raw is not None:
+            cache.store(files[index], configs[index], raw, report)
+    reports = [report for report in found if report is not None]
     by_id: dict[str, list[SpecReport]] = defaultdict(list)
     for report in reports:
         if report.valid and report.id is not None:
@@ -611,3 +632,31 @@ def check_files(files: list[SpecFile], config_for: Any = None, executor: Any = N
                 report.add("duplicate-id", "error", "id",
                            f"id {spec_id!r} is also used by {others}; ids must be unique in the registry", ("id",))
     return reports
+
+
+def _checked(files: list[SpecFile], configs: list[RegistryConfig], todo: list[tuple[int, bytes | None]],
+             executor: Any, meanwhile: Callable[[], None] | None = None) -> Iterator[SpecReport]:
+    """:func:`check_file` of each file in ``todo``, in order: in worker processes when there are many
+    (and no simulation pool), here otherwise. A report a worker cannot give back (one that does not
+    pickle, an unexpected failure) is made here again, so it fails, if at all, as it would alone."""
+
+    def work(n: int) -> SpecReport:
+        index, raw = todo[n]
+        return check_file(files[index], configs[index], executor, raw)
+
+    workers = None
+    if executor is None and len(todo) >= POOL_FROM:
+        from .model import Spec
+        from .workers import ForkedWorkers
+
+        Spec.model_rebuild()  # the validator, built once here, is inherited rather than built in every worker
+        workers = ForkedWorkers(work, len(todo), from_count=POOL_FROM)
+    if workers is None or not workers.pooled:
+        yield from map(work, range(len(todo)))
+        return
+    try:
+        if meanwhile is not None:
+            meanwhile()
+        yield from workers.results()
+    finally:
+        workers.close()

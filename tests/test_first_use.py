@@ -127,28 +127,41 @@ def test_every_family_template_passes_check(tmp_path, run, test):
     bad = [f for f in report["findings"] if f["severity"] in ("error", "warning") and f["kind"] != "template-text"]
     assert report["verdict"] == "ok" and not bad, bad
     assert any(f["kind"] == "template-text" for f in report["findings"])
+    # the example assumptions (a distribution, a layout, factor names) are a lab's to keep, not placeholders
+    assert not [f for f in report["findings"] if f["kind"] == "template-text"
+                and f["field"].startswith("design.effect.")]
 
 
-def test_placeholder_texts_do_not_depend_on_the_templates_size():
-    # check reads the template's texts without sizing its example design (a simulation for some
-    # families); what it compares must be every text of the template new writes
+def test_placeholder_texts_are_those_of_every_familys_template_at_any_size():
+    # check reads one template's texts, without sizing its example design (a simulation for some
+    # families); they must be the prose of the template new writes for every family, whatever its
+    # size. The design's assumptions (design.effect: numbers, a distribution, factor names) are the
+    # family's example and a lab may keep them, so they are never placeholders.
     from datetime import date
 
-    from registry.checks import _ID_SENTINEL, _template_texts
+    from registry.checks import _ID_SENTINEL, _TEMPLATE_CHOICES, _template_texts
     from registry.commands.new import template
     from registry.yamlio import load_bytes_fast
 
+    def prose(value, loc=()):
+        if isinstance(value, dict):
+            return {k: v for key, child in value.items() for k, v in prose(child, (*loc, key)).items()}
+        if isinstance(value, list):
+            return {k: v for index, child in enumerate(value) for k, v in prose(child, (*loc, index)).items()}
+        if isinstance(value, str) and loc[-1] != "id" and ".".join(map(str, loc)) not in _TEMPLATE_CHOICES \
+                and loc[:2] != ("design", "effect"):
+            return {loc: value}
+        return {}
+
+    texts = dict(_template_texts())
+    assert ("question",) in texts and ("outcomes", "primary", "name") in texts
+    assert not [loc for loc in texts if loc[:2] == ("design", "effect")]
     for test in family_names():
-        texts = dict(_template_texts(test))
         for size in (1, 9_999):
             data = load_bytes_fast(template(_ID_SENTINEL, test, None, "schema.json", date(2000, 1, 1),
                                             per_group=size).encode(), "t").data
             assert data["sample_size"]["per_group"] == size
-            for loc, text in texts.items():
-                value = data
-                for part in loc:
-                    value = value[part]
-                assert value == text
+            assert prose(data) == texts, test
     sized = load_bytes_fast(template(_ID_SENTINEL, "two-sample-t", None, "schema.json", date(2000, 1, 1)).encode(),
                             "t").data
     # without per_group the example design is sized: d = 4 / 5 = 0.8 needs 26 analysable units per group

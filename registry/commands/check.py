@@ -43,7 +43,7 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
           history: bool = True, workers: int = 1, cache: bool = True) -> int:
     """Check every spec under ``paths``; 0 when no error finding, 1 otherwise. ``cache``: reuse and keep
     results of earlier runs for what has not changed (:mod:`registry.checkcache`)."""
-    from ..audit import add_history
+    from ..audit import add_history, prefetch_histories
     from ..checks import CAUTION, check_registry, skipped_line
     from ..config import config_loader
     from ..report import console, print_findings, print_table, summary_line, to_json
@@ -61,14 +61,16 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
         from ..checkcache import CheckCache
 
         results = CheckCache()
+    prefetched: dict = {}
     if workers > 1:
         from concurrent.futures import ProcessPoolExecutor
 
         with ProcessPoolExecutor(workers) as pool:
             files, reports, skipped = check_registry(files, config_for, pool, results)
-    else:
-        files, reports, skipped = check_registry(files, config_for, cache=results)
-    status = add_history(reports, files, paths, config_for, cache=results) if history else None
+    else:  # while worker processes check many files, this one reads the git history
+        meanwhile = (lambda: prefetched.update(prefetch_histories(paths))) if history else None
+        files, reports, skipped = check_registry(files, config_for, cache=results, meanwhile=meanwhile)
+    status = add_history(reports, files, paths, config_for, cache=results, prefetched=prefetched) if history else None
     failed = any(r.has_errors for r in reports) or bool(config_errors) or bool(status and status.problems)
     if as_json:
         extra: dict[str, object] = {"config_errors": config_errors} if config_errors else {}

@@ -3,18 +3,18 @@
 from __future__ import annotations
 
 import argparse
-import gc
 import json
 import os
 import sys
 from pathlib import Path
 
-from typing import TYPE_CHECKING, Any, Callable, Iterator
+from typing import TYPE_CHECKING, Any
 
 from ..discovery import UsageError, discover
 from ..hints import id_hint
 from ..fsutil import WriteRefused, confined, write_atomic
 from ..problems import json_escaped, plain_text
+from ..workers import ForkedWorkers
 
 if TYPE_CHECKING:
     from ..checks import SpecReport
@@ -138,89 +138,6 @@ def _write(out: Path, files: dict[str, str], *, durable: bool = True) -> list[Pa
 POOL_FROM = 12
 
 
-class _Workers:
-    """Forked worker processes, one per core, running ``work(i)`` for ``i`` in ``range(count)``.
-
-    Forked workers inherit ``work`` and whatever it reads (the reports), so only the numbers go out
-    and the results come back, a few at a time. :meth:`results` yields them in order; where forking
-    is unavailable or the pool cannot start or breaks, the rest are computed here, one after the
-    other. An interrupt stops the workers without waiting for the results not yet computed (:meth:`close`).
-    """
-
-    def __init__(self, work: Callable[[int], Any], count: int) -> None:
-        import multiprocessing
-
-        self._work, self._count, self._pool, self._frozen = work, count, None, False
-        self._chunks: list[tuple[int, int, Any]] = []  # (first index, end, future)
-        workers = min(os.cpu_count() or 1, count)
-        if count < POOL_FROM or workers < 2 or "fork" not in multiprocessing.get_all_start_methods():
-            return
-        from concurrent.futures import ProcessPoolExecutor
-
-        _WORK[:] = [work]  # read by the forked workers (see _run_work) until close()
-        size = max(1, min(8, count // (8 * workers)))
-        # The workers share this process's memory until they write to it; frozen, the inherited
-        # objects are left out of the workers' garbage collections, which would otherwise write to
-        # (and so copy) every page holding one. Here they stay frozen until close(): the reports
-        # and histories live until then anyway, and full collections need not walk them again.
-        gc.freeze()
-        self._frozen = True
-        try:
-            self._pool = ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork"),
-                                             initializer=_ignore_interrupts)
-            # every chunk is submitted now: the workers start at once, while this process goes on
-            for first in range(0, count, size):
-                end = min(first + size, count)
-                self._chunks.append((first, end, self._pool.submit(_run_work, first, end)))
-        except (OSError, RuntimeError):  # e.g. no shared memory for the pool's queues: computed here instead
-            self.close()
-            self._chunks = []
-
-    def results(self) -> Iterator[Any]:
-        """Every result in order: the workers', and here what they could not give."""
-        from concurrent.futures import CancelledError
-        from concurrent.futures.process import BrokenProcessPool
-
-        done = 0
-        try:
-            for first, end, future in self._chunks:
-                try:
-                    chunk = future.result()
-                except (BrokenProcessPool, CancelledError, OSError):
-                    break  # the rest are computed here
-                done = end
-                yield from chunk
-        finally:
-            self.close()
-        for index in range(done, self._count):
-            yield self._work(index)
-
-    def close(self) -> None:
-        if self._pool is not None:
-            self._pool.shutdown(wait=False, cancel_futures=True)
-            _WORK.clear()
-        if self._frozen:
-            gc.unfreeze()
-            self._frozen = False
-        self._pool = None
-
-
-def _ignore_interrupts() -> None:
-    """In a worker: Ctrl-C is the main process's to handle (it stops the pool), never a worker's traceback."""
-    import signal
-
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
-
-
-#: The work of the pool running now (one at a time), read by its forked workers.
-_WORK: list[Callable[[int], Any]] = []
-
-
-def _run_work(first: int, end: int) -> list[Any]:
-    work = _WORK[0]
-    return [work(index) for index in range(first, end)]
-
-
 def _expected_names(report: SpecReport) -> list[str]:
     """The files a renderable spec's summary is written to (checked before anything is written)."""
     from ..summary.document import figure_name, page_stem
@@ -325,8 +242,9 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
         print(plain_text(f"prespec: error: {error}; nothing was written"), file=sys.stderr)
         return 1
     facts = file_facts([path for _, path in jobs]) if all_specs else {}  # git asked once per folder
-    summaries = _Workers(lambda index: build_summary(*jobs[index], rendered_at, index_link=all_specs,
-                                                     facts=facts.get(jobs[index][1])), len(jobs))
+    summaries = ForkedWorkers(lambda index: build_summary(*jobs[index], rendered_at, index_link=all_specs,
+                                                     facts=facts.get(jobs[index][1])), len(jobs),
+                              from_count=POOL_FROM)
     built = summaries.results()
     progress = _Progress(len(jobs) if all_specs and out is not None else 0)
     try:

@@ -105,6 +105,8 @@ def _design_model(family: Family) -> type[DesignBase]:
 
 for _family in FAMILIES:
     type(_family).design_model = _design_model(_family)
+    # found by name here, as pickle looks a class up: a checked spec travels from a worker process
+    globals()[type(_family).design_model.__name__] = type(_family).design_model
 
 #: The ``design:`` block of a spec: one model per family, chosen by ``test``.
 DesignUnion = Annotated[
