@@ -609,13 +609,11 @@ def check_files(files: list[SpecFile], config_for: Any = None, executor: Any = N
     found: list[SpecReport | None] = [None] * len(files)
     todo: list[tuple[int, bytes | None]] = []  # (index, the bytes the cache hashed, if any)
     for index, (spec_file, config) in enumerate(zip(files, configs)):
+        raw = None
         if cache is not None:
             found[index], raw = cache.lookup(spec_file, config)
-            if found[index] is not None:
-                continue
+        if found[index] is None:
             todo.append((index, raw))
-        else:
-            todo.append((index, None))
     for (index, raw), report in zip(todo, _checked(files, configs, todo, executor, meanwhile)):
         found[index] = report
         if cache is not None and raw is not None:

@@ -243,8 +243,8 @@ def render(spec_id: str | None, *, all_specs: bool = False, out: str | None = No
         return 1
     facts = file_facts([path for _, path in jobs]) if all_specs else {}  # git asked once per folder
     summaries = ForkedWorkers(lambda index: build_summary(*jobs[index], rendered_at, index_link=all_specs,
-                                                     facts=facts.get(jobs[index][1])), len(jobs),
-                              from_count=POOL_FROM)
+                                                          facts=facts.get(jobs[index][1])),
+                              len(jobs), from_count=POOL_FROM)
     built = summaries.results()
     progress = _Progress(len(jobs) if all_specs and out is not None else 0)
     try:
