@@ -170,6 +170,8 @@ def _put(target: dict[str, Any], loc: tuple[Any, ...], value: Any) -> None:
 
 
 _PEEK = (("id",), ("data_collection", "start"))
+#: A version whose text :func:`peek_scalars` cannot answer for.
+_NO_PEEK: dict[tuple[str, ...], str] = {}
 
 
 @dataclass
@@ -212,18 +214,31 @@ class Snapshot:
         if not self._parsed:
             self._data, self._parsed, self._spec, self._validated = data, True, spec, True
 
-    def _peek(self) -> dict[tuple[str, ...], str] | None:
+    def _scan(self) -> dict[tuple[str, ...], str] | None:
+        """The scalars :func:`peek_scalars` read at :data:`_PEEK`; fewer than all of them when it read
+        the whole text without finding the others. ``None`` when the peek cannot answer."""
         if self._parsed or self.raw is None:
             return None
         if self._peeked is None:
-            self._peeked = peek_scalars(self.raw, _PEEK) or {}
-        return self._peeked if len(self._peeked) == len(_PEEK) else None
+            found = peek_scalars(self.raw, _PEEK)
+            self._peeked = _NO_PEEK if found is None else found
+        return None if self._peeked is _NO_PEEK else self._peeked
+
+    def _peek(self) -> dict[tuple[str, ...], str] | None:
+        scanned = self._scan()
+        return scanned if scanned is not None and len(scanned) == len(_PEEK) else None
 
     @property
     def id(self) -> str | None:
-        peeked = self._peek()
-        if peeked is not None:
-            return peeked[("id",)]
+        scanned = self._scan()
+        if scanned is not None:
+            if len(scanned) == len(_PEEK):
+                return scanned[("id",)]
+            if ("id",) not in scanned:
+                # The whole text was read and its top-level mapping has no 'id' key (nor an alias or a
+                # complex key the peek could not follow): a full load cannot find one either. Such
+                # texts (an alias-laden or a non-spec YAML file) are often the costliest to load.
+                return None
         data = self.data
         if isinstance(data, dict) and isinstance(data.get("id"), str) and SPEC_KEYS & data.keys():
             return data["id"]
@@ -553,7 +568,8 @@ def spec_events(log: Iterable[LogEntry], store: SnapshotStore,
                     olds.setdefault(spec_id, []).append((change.old_path, change.old_blob))
             if change.new_path and change.new_blob:
                 snap = store.get(change.new_blob)
-                spec_id = snap.id or (path_ids.get(change.new_path) if snap.data is None else None) or \
+                spec_id = snap.id or (path_ids.get(change.new_path) if change.new_path in path_ids
+                                      and snap.data is None else None) or \
                     (known.get(change.new_path) if snap.unreadable else None)
                 if not spec_id and change.other_blobs:  # a merge: the id the other parents' versions hold
                     spec_id = next((store.get(b).id for b in change.other_blobs if b and store.get(b).id), None)

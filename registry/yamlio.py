@@ -583,7 +583,8 @@ def peek_scalars(raw: bytes, paths: tuple[tuple[str, ...], ...]) -> dict[tuple[s
     historical versions whose only interesting values are an id and a date.
 
     Returns ``None`` when it cannot answer with certainty (no C parser, a syntax error, an alias or
-    a complex key on the way); the caller then loads the text in full.
+    a complex key on the way); the caller then loads the text in full. A dict without some of
+    ``paths`` means the whole text was read and holds no scalar there.
     """
     if _C is None or len(raw) > MAX_FILE_BYTES or _DIRECTIVE_BYTES_RE.search(raw) is not None:
         return None

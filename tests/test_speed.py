@@ -189,6 +189,32 @@ def test_a_free_field_that_makes_a_version_invalid_is_still_compared():
     assert (good.spec is None) != (bad.spec is None)
 
 
+_ALIAS_LADEN = "a: &a [x, x, x, x, x, x, x, x]\nb: &b [*a, *a, *a, *a, *a, *a, *a, *a]\nc: [*b, *b, *b, *b, *b]\n"
+
+
+@pytest.mark.parametrize("text, expected_id", [
+    (spec_text(), "mouse-diet"),  # id and start found: the peek answers
+    (_ALIAS_LADEN, None),  # no top-level id anywhere in the text: answered without building 300 values
+    ("name: ci\non: [push]\njobs: {test: {id: not-top-level}}\n", None),
+    ("- id: a-list-item\n  design: {}\n", None),  # the top level is a list
+    ("title: t\ndesign: {}\n---\ntitle: second document\n", None),
+    # ids the peek cannot settle, so the text is loaded in full
+    ("a: &k id\n*k : keyed-by-alias\ndesign: {}\n", "keyed-by-alias"),
+    ("id: no-start\ndesign: {family: two-sample-t}\n", "no-start"),
+    ("id: [not, text]\ndesign: {}\n", None),
+    ("id: broken\ndesign: {a: [1, 2}\n", None),  # a syntax error: not a readable version
+])
+def test_a_versions_id_from_the_peek_is_the_id_a_full_load_gives(text, expected_id):
+    # Snapshot.id reads only as much of a historical version as it needs; a version with no
+    # top-level id is settled by the peek alone, yet every answer equals the full load's
+    # (the full load is forced by reading .data first).
+    peeked, loaded = Snapshot("a", text.encode()), Snapshot("b", text.encode())
+    loaded.data
+    assert peeked.id == loaded.id == expected_id
+    if expected_id is None and text.startswith(("a: &a", "name: ci", "- id", "title")):
+        assert not peeked._parsed, "settled by the peek without a full load"
+
+
 def test_render_all_in_worker_processes_writes_what_one_process_writes(run, tmp_path, monkeypatch):
     from registry.commands import render as render_command
 

@@ -43,10 +43,10 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
           history: bool = True, workers: int = 1, cache: bool = True) -> int:
     """Check every spec under ``paths``; 0 when no error finding, 1 otherwise. ``cache``: reuse and keep
     results of earlier runs for what has not changed (:mod:`registry.checkcache`)."""
-    from ..audit import add_history, prefetch_histories
+    # Only what checking the files needs is loaded before worker processes fork to check them; git,
+    # the history machinery and the console are loaded here while they work (see _meanwhile).
     from ..checks import CAUTION, check_registry, skipped_line
     from ..config import config_loader
-    from ..report import console, print_findings, print_table, summary_line, to_json
 
     if oversize_margin is not None and not 0 <= oversize_margin <= 10:
         raise UsageError(f"--oversize-margin must be between 0 and 10; got {oversize_margin!r}")
@@ -68,8 +68,11 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
         with ProcessPoolExecutor(workers) as pool:
             files, reports, skipped = check_registry(files, config_for, pool, results)
     else:  # while worker processes check many files, this one reads the git history
-        meanwhile = (lambda: prefetched.update(prefetch_histories(paths))) if history else None
-        files, reports, skipped = check_registry(files, config_for, cache=results, meanwhile=meanwhile)
+        files, reports, skipped = check_registry(files, config_for, cache=results,
+                                                 meanwhile=lambda: _meanwhile(paths, prefetched, history))
+    from ..audit import add_history
+    from ..report import console, print_findings, print_table, summary_line, to_json
+
     status = add_history(reports, files, paths, config_for, cache=results, prefetched=prefetched) if history else None
     failed = any(r.has_errors for r in reports) or bool(config_errors) or bool(status and status.problems)
     if as_json:
@@ -96,3 +99,13 @@ def check(paths: list[str], *, as_json: bool = False, oversize_margin: float | N
         out.print(plain_text(status.message()))
     out.print(f"Note: {CAUTION}")
     return 1 if failed else 0
+
+
+def _meanwhile(paths: list[str], prefetched: dict, history: bool) -> None:
+    """What this process does while worker processes check the files: it loads what reporting needs
+    and reads the git history of each repository (into ``prefetched``) unless ``history`` is off."""
+    from ..audit import prefetch_histories
+    from .. import report  # noqa: F401 - loaded now, used once the reports are in
+
+    if history:
+        prefetched.update(prefetch_histories(paths))
