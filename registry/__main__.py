@@ -2,10 +2,15 @@
 ends it as one during a command does, with "prespec: interrupted" and status 130, no traceback."""
 
 import gc
+import os
 import sys
 
 
 def entry() -> None:
+    # prespec's matrices are a few rows across, and its parallel work runs in processes, one per
+    # core; OpenBLAS's own threads (one per core, started as numpy loads) would only spin beside
+    # them and slow them down. One thread each, unless the user has said otherwise.
+    os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
     try:
         from .cli import main
     except KeyboardInterrupt:

@@ -1,7 +1,7 @@
 """Ties git (registry/git.py) to the drift analysis (registry/history.py) for the commands.
 
-``check`` calls :func:`add_history` (after :func:`prefetch_histories` when it checks files in
-worker processes); ``history``, ``register`` and ``verify`` use
+``check`` calls :func:`add_history` (after :func:`prefetch_histories`, run in a process of its
+own, when it checks files in worker processes); ``history``, ``register`` and ``verify`` use
 :func:`read_history` and :func:`find_spec`; a summary renderer can call
 :func:`provenance` for a spec's drift verdict, last commit and registration tag.
 """
@@ -55,6 +55,16 @@ class RegistryHistory:
     now: datetime = field(default_factory=lambda: datetime.now(timezone.utc))
     _cache: dict[tuple[str, tuple[str, ...], bool], SpecHistory] = field(default_factory=dict)
 
+    def __getstate__(self) -> dict[str, Any]:
+        # A history read in another process (check's history reader) comes back without that
+        # process's repository handle, a live git object; the receiver attaches its own.
+        return {**self.__dict__, "repo": None}
+
+    def attach(self, repo: Repository) -> None:
+        """Use ``repo`` (this process's handle of the repository this history was read from)."""
+        self.repo = repo
+        self.store.attach(_blob_reader(repo))
+
     def history(self, spec_id: str, extra_locked: Sequence[str] = (), *, detail: bool = False) -> SpecHistory:
         key = (spec_id, tuple(extra_locked), detail)
         if key not in self._cache:
@@ -87,14 +97,7 @@ def read_history(repo: Repository, known_paths: dict[str, str] | None = None) ->
     tree = repo.tree_files()
     wanted = {sha for entry in log for change in entry.changes
               for sha in (change.old_blob, change.new_blob, *change.other_blobs) if sha}
-
-    def read(sha: str) -> bytes:
-        try:
-            return repo.read_blob(sha)
-        except GitProblem as error:
-            raise UnreadableBlob(f"git in {repo.root} says: {error}") from None
-
-    store = SnapshotStore(read, repo.read_blobs(sorted(wanted | set(tree.values()))))
+    store = SnapshotStore(_blob_reader(repo), repo.read_blobs(sorted(wanted | set(tree.values()))))
     commits = {entry.commit.sha: entry.commit for entry in log}
     head_ids: dict[str, tuple[str, str]] = {}
     for path, blob in tree.items():
@@ -104,6 +107,18 @@ def read_history(repo: Repository, known_paths: dict[str, str] | None = None) ->
             head_ids[spec_id] = (path, blob)
     return RegistryHistory(repo, repo.head(), repo.is_shallow(), store, spec_events(log, store, known), head_ids,
                            {sha: c.committer_date for sha, c in commits.items()}, commits, repo.detached())
+
+
+def _blob_reader(repo: Repository) -> Callable[[str], bytes]:
+    """One blob's bytes from ``repo``; a blob git cannot give is an :class:`UnreadableBlob`."""
+
+    def read(sha: str) -> bytes:
+        try:
+            return repo.read_blob(sha)
+        except GitProblem as error:
+            raise UnreadableBlob(f"git in {repo.root} says: {error}") from None
+
+    return read
 
 
 def prefetch_histories(paths: Sequence[str]) -> dict[Path, RegistryHistory]:
@@ -272,8 +287,11 @@ def _repository_history(repo: Repository, members: list[tuple[SpecReport, SpecFi
              for rel in [repo.relpath(spec_file.path)] if rel}
     try:
         # a prefetched history is read without the working tree's ids, which only name unreadable versions
-        registry = prefetched if prefetched is not None and not prefetched.store.unreadable() \
-            else read_history(repo, known)
+        if prefetched is not None and not prefetched.store.unreadable():
+            registry = prefetched
+            registry.attach(repo)  # it may have been read in another process
+        else:
+            registry = read_history(repo, known)
         all_tags = repo.tags("prespec")
     except GitProblem as error:
         status.problems.append(f"{root}: {error}")

@@ -12,7 +12,7 @@ import re
 from collections import defaultdict
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Callable, Iterator, Literal
+from typing import TYPE_CHECKING, Any, Iterator, Literal, Protocol
 
 from .config import RegistryConfig
 from .discovery import SpecFile
@@ -559,7 +559,7 @@ def not_a_spec(data: Any) -> bool:
 
 
 def check_registry(files: list[SpecFile], config_for: Any = None, executor: Any = None, cache: Any = None,
-                   meanwhile: Callable[[], None] | None = None) -> tuple[list[SpecFile], list[SpecReport], list[str]]:
+                   meanwhile: Meanwhile | None = None) -> tuple[list[SpecFile], list[SpecReport], list[str]]:
     """Check the specs among ``files``: (files, reports, skipped) with files and reports aligned.
 
     Files a registry's ``include``/``exclude`` leave out are not read; YAML files that are plainly
@@ -597,14 +597,25 @@ def skipped_line(skipped: list[str]) -> str:
 POOL_FROM = 8
 
 
+class Meanwhile(Protocol):
+    """What the calling process does while worker processes check the spec files (``check``
+    reads the git history then): :func:`check_files` calls ``before`` once it is to start workers,
+    before it loads what they need, and ``during`` while they work (or, where no worker could
+    start, once the files are checked here)."""
+
+    def before(self) -> None: ...
+
+    def during(self) -> None: ...
+
+
 def check_files(files: list[SpecFile], config_for: Any = None, executor: Any = None, cache: Any = None,
-                meanwhile: Callable[[], None] | None = None) -> list[SpecReport]:
+                meanwhile: Meanwhile | None = None) -> list[SpecReport]:
     """Check every file, then the registry-wide rules (unique ids). ``executor`` (a
     ``concurrent.futures.Executor``) carries the simulations of simulation-verified sizes; ``cache``
     (a :class:`registry.checkcache.CheckCache`) answers for files it holds unchanged. Without an
     ``executor``, :data:`POOL_FROM` files or more to check are checked in worker processes (the
-    reports are the same as one process gives), and this process calls ``meanwhile`` while they
-    work (``check`` reads the git history then)."""
+    reports are the same as one process gives), and this process does its ``meanwhile`` work
+    (:class:`Meanwhile`) while they work."""
     configs = [config_for(spec_file) if config_for else RegistryConfig() for spec_file in files]
     found: list[SpecReport | None] = [None] * len(files)
     todo: list[tuple[int, bytes | None]] = []  # (index, the bytes the cache hashed, if any)
@@ -633,7 +644,7 @@ def check_files(files: list[SpecFile], config_for: Any = None, executor: Any = N
 
 
 def _checked(files: list[SpecFile], configs: list[RegistryConfig], todo: list[tuple[int, bytes | None]],
-             executor: Any, meanwhile: Callable[[], None] | None = None) -> Iterator[SpecReport]:
+             executor: Any, meanwhile: Meanwhile | None = None) -> Iterator[SpecReport]:
     """:func:`check_file` of each file in ``todo``, in order: in worker processes when there are many
     (and no simulation pool), here otherwise. A report a worker cannot give back (one that does not
     pickle, an unexpected failure) is made here again, so it fails, if at all, as it would alone."""
@@ -644,6 +655,8 @@ def _checked(files: list[SpecFile], configs: list[RegistryConfig], todo: list[tu
 
     workers = None
     if executor is None and len(todo) >= POOL_FROM:
+        if meanwhile is not None:
+            meanwhile.before()
         from .model import Spec
         from .workers import ForkedWorkers
 
@@ -651,10 +664,12 @@ def _checked(files: list[SpecFile], configs: list[RegistryConfig], todo: list[tu
         workers = ForkedWorkers(work, len(todo), from_count=POOL_FROM)
     if workers is None or not workers.pooled:
         yield from map(work, range(len(todo)))
+        if workers is not None and meanwhile is not None:  # before() was called: no workers, so now
+            meanwhile.during()
         return
     try:
         if meanwhile is not None:
-            meanwhile()
+            meanwhile.during()
         yield from workers.results()
     finally:
         workers.close()

@@ -5,7 +5,8 @@ renames it over the target, so a reader (or a crash) never sees half a file. Wit
 ``overwrite=False`` it never replaces anything, not even a symbolic link, and the
 final step is a hard link that fails if the name appeared in the meantime.
 :func:`confined` turns a user's folder and a file name into a target that cannot leave
-that folder through ``..``, an absolute name or a symbolic link.
+that folder through ``..``, an absolute name or a symbolic link. :func:`output_to_null`
+sends a background process's output nowhere (the only other file it opens for writing).
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ import stat
 import tempfile
 from pathlib import Path, PurePath
 
-__all__ = ["write_atomic", "move_within", "confined", "WriteRefused"]
+__all__ = ["write_atomic", "move_within", "confined", "WriteRefused", "output_to_null"]
 
 # Errors of os.link on file systems without hard links; the fallback reserves the name instead.
 _NO_HARD_LINKS = {errno.EPERM, errno.EXDEV, errno.EMLINK, errno.ENOTSUP, errno.EOPNOTSUPP, errno.ENOSYS}
@@ -141,3 +142,16 @@ def move_within(folder: Path | str, source: str, target: str) -> Path:
     os.rename(old, new)
     _sync_folder(new.parent)
     return new
+
+
+def output_to_null() -> None:
+    """Send everything this process writes to its standard output and error to the null device:
+    what the programs it runs and C code write (file descriptors 1 and 2) and what Python code
+    prints (``sys.stdout``, ``sys.stderr``). For a forked background process
+    (:class:`registry.workers.BackgroundCall`), whose output is not for the terminal."""
+    import sys
+
+    null = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(null, 1)
+    os.dup2(null, 2)
+    sys.stdout = sys.stderr = open(null, "w", encoding="utf-8", closefd=False)

@@ -172,6 +172,9 @@ class _OddUTC(tzinfo):
     def __repr__(self) -> str:
         return "odd offset, read as UTC"
 
+    def __reduce__(self) -> str:  # told apart by identity (odd_offset), so unpickled as the one instance
+        return "_ODD_UTC"
+
 
 _ODD_UTC = _OddUTC()
 _ISO_OFFSET = re.compile(r"(\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d)([+-])(\d\d):?(\d\d)")

@@ -87,6 +87,9 @@ class _Missing:
     def __repr__(self) -> str:
         return "MISSING"
 
+    def __reduce__(self) -> str:  # unpickled (from another process) as this module's one marker
+        return "MISSING"
+
 
 #: A field absent on one side of a comparison.
 MISSING: Any = _Missing()
@@ -170,8 +173,17 @@ def _put(target: dict[str, Any], loc: tuple[Any, ...], value: Any) -> None:
 
 
 _PEEK = (("id",), ("data_collection", "start"))
-#: A version whose text :func:`peek_scalars` cannot answer for.
-_NO_PEEK: dict[tuple[str, ...], str] = {}
+
+
+class _NoPeek(dict):  # type: ignore[type-arg]
+    """The marker of a version whose text :func:`peek_scalars` cannot answer for: told apart from
+    an answer by identity, so it unpickles (a history read in another process) as the one marker."""
+
+    def __reduce__(self) -> str:
+        return "_NO_PEEK"
+
+
+_NO_PEEK: dict[tuple[str, ...], str] = _NoPeek()
 
 
 @dataclass
@@ -311,6 +323,14 @@ class SnapshotStore:
         self._blobs = dict(blobs or {})
         self._cache: dict[str, Snapshot] = {}
 
+    def __getstate__(self) -> dict[str, Any]:
+        # pickled (read in another process) without the reader, which holds that process's git handle
+        return {**self.__dict__, "_read": _not_attached}
+
+    def attach(self, read_blob: Callable[[str], bytes]) -> None:
+        """Read the blobs not yet read with ``read_blob`` (this process's, for a store read elsewhere)."""
+        self._read = read_blob
+
     def get(self, blob: str) -> Snapshot:
         snap = self._cache.get(blob)
         if snap is None:
@@ -327,6 +347,11 @@ class SnapshotStore:
     def unreadable(self) -> dict[str, str]:
         """Blob id -> what git said, for every version asked for that git could not give."""
         return {blob: snap.unreadable for blob, snap in self._cache.items() if snap.unreadable}
+
+
+def _not_attached(blob: str) -> bytes:
+    raise RuntimeError(f"blob {blob}: a version store read in another process must be attached to this "
+                       "process's repository before it reads more")
 
 
 def diff(old: Any, new: Any, path: str = "") -> list[tuple[str, Any, Any]]:

@@ -18,6 +18,9 @@ class _NoValue:
     def __repr__(self) -> str:  # pragma: no cover - debugging aid
         return "NO_VALUE"
 
+    def __reduce__(self) -> str:  # unpickled (from a worker process) as this module's one marker
+        return "NO_VALUE"
+
 
 #: Marker for "the problem is not about a particular value" (a missing key, a file).
 NO_VALUE: Any = _NoValue()

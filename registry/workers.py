@@ -1,8 +1,10 @@
-"""Forked worker processes for work that is many independent pieces (the specs of a registry).
+"""Forked worker processes for work that is many independent pieces (the specs of a registry),
+and a forked process for one piece of work done on the side.
 
 ``render --all`` builds its summaries and draws their figures here, and ``check`` checks the
 spec files it has no cached result for. Each piece runs in a worker forked from this process,
 so it sees everything this process has loaded and read; results come back pickled, in order.
+``check`` reads the git history in a :class:`BackgroundCall` meanwhile.
 """
 
 from __future__ import annotations
@@ -11,7 +13,7 @@ import gc
 import os
 from typing import Any, Callable, Iterator
 
-__all__ = ["ForkedWorkers"]
+__all__ = ["ForkedWorkers", "BackgroundCall"]
 
 
 class ForkedWorkers:
@@ -105,3 +107,96 @@ _WORK: list[Callable[[int], Any]] = []
 def _run_work(first: int, end: int) -> list[Any]:
     work = _WORK[0]
     return [work(index) for index in range(first, end)]
+
+
+class BackgroundCall:
+    """``function(*args)`` computed in a process forked from this one now, while this one goes on.
+
+    For work that needs nothing this process is about to load: ``check`` starts reading the git
+    history before it loads the statistics its workers need, and so the history is read on the
+    core that loading leaves idle. :meth:`result` waits for the value, which comes back through a
+    ``multiprocessing`` pipe (as :class:`ForkedWorkers`' results do), and gives ``None`` where the
+    child has none to give: no ``fork`` here, the work raised there, or its value does not pickle.
+    The caller then does the work itself, so a failed child costs time, never a result. The
+    child's output goes nowhere, and Ctrl-C is this process's to handle: the child ignores it,
+    and :meth:`close` stops it. While other threads run here there is no child either: one of
+    them may hold a lock the child would wait for forever.
+    """
+
+    def __init__(self, function: Callable[..., Any], *args: Any) -> None:
+        import sys
+
+        self._pid: int | None = None
+        self._value: Any = None
+        threading = sys.modules.get("threading")  # not loaded: no other thread can be running
+        if not hasattr(os, "fork") or (threading is not None and threading.active_count() > 1):
+            return
+        from multiprocessing import Pipe
+
+        receiving, sending = Pipe(duplex=False)
+        try:
+            pid = os.fork()
+        except OSError:  # no process to spare: the caller does the work
+            receiving.close()
+            sending.close()
+            return
+        if pid == 0:  # the child: compute, send, and leave without running this process's exit code
+            try:
+                receiving.close()
+                _quiet_child()
+                _send(sending, function, args)
+            finally:
+                os._exit(0)
+        sending.close()
+        self._pid, self._receiving = pid, receiving
+
+    def result(self) -> Any:
+        """The child's value (waiting for it), or ``None``; the same on every call."""
+        if self._pid is None:
+            return self._value
+        try:
+            done, value = self._receiving.recv()
+        except Exception:  # noqa: BLE001 - the child died before it sent (EOFError), or cut short
+            done, value = False, None
+        finally:
+            self.close()
+        self._value = value if done else None
+        return self._value
+
+    def close(self) -> None:
+        """Stop the child if it is still running (an interrupt while waiting for it), and reap it."""
+        if self._pid is not None:
+            import signal
+
+            try:
+                os.kill(self._pid, signal.SIGKILL)  # a child that has sent is leaving anyway
+            except OSError:  # already gone
+                pass
+            try:
+                os.waitpid(self._pid, 0)
+            except OSError:
+                pass
+            self._pid = None
+            self._receiving.close()
+
+
+def _quiet_child() -> None:
+    """In a background child: Ctrl-C is the parent's, and nothing it writes reaches the terminal."""
+    import signal
+
+    from .fsutil import output_to_null
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    output_to_null()
+
+
+def _send(sending: Any, function: Callable[..., Any], args: tuple[Any, ...]) -> None:
+    try:
+        value = function(*args)
+    except BaseException:  # noqa: BLE001 - any failure there: the parent does the work itself
+        sending.send((False, None))
+        return
+    try:
+        sending.send((True, value))  # pickled whole before anything is written
+    except Exception:  # noqa: BLE001 - a value that does not pickle
+        sending.send((False, None))

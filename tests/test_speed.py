@@ -9,6 +9,7 @@ main loader gives.
 from __future__ import annotations
 
 import json
+import os
 import subprocess
 import sys
 
@@ -241,3 +242,38 @@ def test_a_command_leaves_the_garbage_collector_as_it_found_it(run):
         assert gc.get_threshold() == (123, 4, 5)
     finally:
         gc.set_threshold(*before)
+
+
+def test_check_pauses_the_collector_and_restores_it(run, monkeypatch):
+    # a check holds next to no reference cycles, so it runs without collector passes; a program
+    # calling main() gets its collector back as it was, enabled or not
+    import gc
+
+    import registry.commands.check as check_command
+
+    seen = []
+    real = check_command.check
+    monkeypatch.setattr(check_command, "check", lambda *a, **k: seen.append(gc.isenabled()) or real(*a, **k))
+    was = gc.isenabled()
+    try:
+        for enabled in (True, False):
+            (gc.enable if enabled else gc.disable)()
+            assert run("check", "--no-history", EXAMPLES / "fibre-butyrate.yaml").status == 0
+            assert gc.isenabled() is enabled
+    finally:
+        (gc.enable if was else gc.disable)()
+    assert seen == [False, False]
+
+
+@pytest.mark.parametrize("preset", [None, "3"])
+def test_the_cli_runs_openblas_on_one_thread_unless_told_otherwise(preset):
+    # prespec's parallel work is processes, one per core: BLAS threads beside them only compete
+    env = {k: v for k, v in os.environ.items() if k != "OPENBLAS_NUM_THREADS"}
+    if preset is not None:
+        env["OPENBLAS_NUM_THREADS"] = preset
+    probe = ("import os, registry.__main__ as m, registry.cli as c\n"
+             "c.main = lambda: print(os.environ.get('OPENBLAS_NUM_THREADS')) or 0\n"
+             "m.entry()\n")
+    done = subprocess.run([sys.executable, "-c", probe], cwd=ROOT, env=env, capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.strip() == (preset or "1")

@@ -264,7 +264,7 @@ def _limit(design: Any) -> float:
 def design_assurance(design: Any, n: int) -> Assurance:
     """Assurance at ``n``, the power there, and the n for ``design.assurance.target`` when given."""
     from .base import InfeasibleDesign
-    from .solve import power_of, smallest_n
+    from .solve import power_of, smallest_n_pointwise
 
     plan: AssurancePlan = design.assurance
     value = assurance_of(design, n)
@@ -278,6 +278,6 @@ def design_assurance(design: Any, n: int) -> Assurance:
                 "probability that the effect lies in the planned direction; lower the target or narrow the prior",
                 "design.assurance.target")
         grid = lambda ns: np.array([assurance_of(design, int(k)) for k in ns])  # noqa: E731
-        n_target, _ = smallest_n(grid, plan.target, float(n), design.family.min_n)
+        n_target, _ = smallest_n_pointwise(grid, plan.target, float(n), design.family.min_n)
     return Assurance(n_per_group=n, assurance=value, power=power, limit=limit, target=plan.target,
                      n_for_target=n_target)

@@ -367,6 +367,9 @@ class Family(ABC):
     exact: ClassVar[bool] = True
     #: Whether power never decreases with n (False for exact discrete tests).
     monotone: ClassVar[bool] = True
+    #: Whether :meth:`power` computes each n separately (a loop, not one vectorized call): the size
+    #: search then evaluates one n at a time (:func:`registry.power.solve.smallest_n_pointwise`).
+    power_per_n: ClassVar[bool] = False
     #: Whether a clustered design is sized by :meth:`cluster_power` (the test on cluster means)
     #: rather than by the design effect.
     cluster_means: ClassVar[bool] = False

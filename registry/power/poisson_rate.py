@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from pydantic import field_validator, model_validator
+from pydantic import model_validator
 from scipy import special
 
 from .base import DesignBase, EffectBase, Family, locked

@@ -255,6 +255,7 @@ class RepeatedMeasures(Family):
     unit = "subjects per group"
     groups = 1
     exact = False  # per design: see label()
+    power_per_n = True  # an expected epsilon per n (Monte Carlo quantiles) under a sphericity correction
     effect_model = RepeatedProfile
     example = {"means": [[20.0, 22.0, 23.0, 23.0]], "sd": 5.0, "correlation": 0.6}
     effect_words = {"means": "mean profiles of", "correlation": "a correlation between repeated measurements of",
@@ -376,7 +377,7 @@ class RepeatedMeasures(Family):
         """Eigenvalues a_i of the contrasts' covariance and, per subject, the squared projections of the
         term's mean contrasts on each eigenvector over a_i (scaled to the standardized effect ``es``)."""
         effect = design.effect
-        m, g = effect.measurements, effect.groups
+        m = effect.measurements
         c = contrast_basis(m)
         weights, vectors = np.linalg.eigh(c @ effect.covariance() @ c.T)
         mu = effect.table()
@@ -392,10 +393,14 @@ class RepeatedMeasures(Family):
         if term in ("change", "contrast"):
             per = super().approximate_n(design, effect_size)
             return per * (2 if effect.groups == 2 else 1) + 1
-        _, _, df1 = self._pieces(design)
-        lam = required_noncentrality(df1, design.alpha, design.power)
+        _, eps, df1 = self._pieces(design)
         if term == "between":
-            return lam / (effect_size**2 * effect.groups) + 1
+            return required_noncentrality(df1, design.alpha, design.power) / (effect_size**2 * effect.groups) + 1
+        # Muller & Barton (1989): under a sphericity correction the test behaves like the noncentral F
+        # with df and noncentrality multiplied by epsilon, so the chi-square start uses eps * df1 and
+        # needs 1 / eps times its noncentrality (eps = 1 without a correction). A start this close saves
+        # most of the per-n expected-epsilon evaluations of the size search.
+        lam = required_noncentrality(eps * df1, design.alpha, design.power) / eps
         return lam / (effect_size**2 * (effect.measurements - 1) * effect.groups) + 2
 
     def group_sizes(self, design: DesignBase, n: int) -> tuple[int, ...]:

@@ -11,8 +11,8 @@ from .roots import brentq
 from .base import MAX_N, DesignBase, EventsOnly, Family, InfeasibleDesign
 from .results import PowerAtN, SampleSize
 
-__all__ = ["smallest_n", "smallest_n_from_which", "solve_sample_size", "checked_effect", "power_at", "power_of",
-           "minimum_effect", "enrolment"]
+__all__ = ["smallest_n", "smallest_n_pointwise", "smallest_n_from_which", "solve_sample_size", "checked_effect",
+           "power_at", "power_of", "minimum_effect", "enrolment"]
 
 _BLOCK = 8  # candidates evaluated at once around the normal-approximation start
 _SCAN_LIMIT = 5_000_000  # largest n a non-monotone family's exhaustive scan may reach
@@ -74,6 +74,70 @@ def smallest_n(
     p = power_of(cand)
     i = int(np.argmax(p >= target))
     return int(cand[i]), float(p[i])
+
+
+def smallest_n_pointwise(
+    power_of: Callable[[np.ndarray], np.ndarray], target: float, start: float, lo: int, hi: int = MAX_N
+) -> tuple[int, float]:
+    """The same answer as :func:`smallest_n`, for power whose every n costs a separate computation
+    (an expected epsilon, an assurance integral): no block of candidates, one n at a time.
+
+    Brackets the crossing from ``ceil(start)`` by steps that double (1, 2, 4, ...), then narrows it
+    by interpolation in (sqrt(n), probit(power)), where power curves are nearly straight, falling back
+    to bisection whenever an interpolated step fails to halve the bracket. For a good start this
+    costs two evaluations (the start and its neighbour) instead of a block of eight.
+    """
+    from scipy.special import ndtri
+
+    memo: dict[int, float] = {}
+
+    def at(k: int) -> float:
+        if k not in memo:
+            memo[k] = float(power_of(np.array([k]))[0])
+        return memo[k]
+
+    first = int(min(max(math.ceil(start) if math.isfinite(start) else hi, lo), hi))
+    step = 1
+    if at(first) >= target:  # step down until power falls below the target
+        high = first
+        while True:
+            if high <= lo:
+                return lo, at(lo)
+            low = max(lo, high - step)
+            if at(low) < target:
+                break
+            high, step = low, step * 2
+    else:  # step up until it reaches the target
+        low = first
+        while True:
+            if low >= hi:
+                raise InfeasibleDesign(
+                    f"no sample size up to {hi:,} per group reaches the target power; "
+                    "the effect is too small for this design"
+                )
+            high = min(hi, low + step)
+            if at(high) >= target:
+                break
+            low, step = high, step * 2
+    z_target = float(ndtri(min(max(target, 1e-12), 1 - 1e-12)))
+    width_before = None
+    while high - low > 1:
+        width = high - low
+        mid = None
+        if width_before is None or 2 * width <= width_before:  # the last step halved the bracket
+            z_low, z_high = (float(ndtri(min(max(at(k), 1e-12), 1 - 1e-12))) for k in (low, high))
+            if z_high > z_low:
+                r_low, r_high = math.sqrt(low), math.sqrt(high)
+                guess = (r_low + (z_target - z_low) * (r_high - r_low) / (z_high - z_low)) ** 2
+                mid = min(max(math.ceil(guess - 1e-9), low + 1), high - 1)
+        if mid is None:
+            mid = (low + high) // 2
+        width_before = width if mid != (low + high) // 2 else None
+        if at(mid) >= target:
+            high = mid
+        else:
+            low = mid
+    return high, at(high)
 
 
 def smallest_n_from_which(
@@ -257,8 +321,8 @@ def solve_sample_size(design: DesignBase, effect_size: float | None = None) -> S
         sizes = (n, math.ceil(design.allocation_ratio * k - 1e-9) * m)
     else:
         if family.monotone:
-            n_individual, achieved = smallest_n(lambda n: family.power(tested, n, es), tested.power, start,
-                                                family.min_n)
+            search = smallest_n_pointwise if family.power_per_n else smallest_n
+            n_individual, achieved = search(lambda n: family.power(tested, n, es), tested.power, start, family.min_n)
         else:
             n_individual, achieved, notes = _settled_n(family, tested, es, start)
         n = _clustered(design, n_individual)
