@@ -182,11 +182,9 @@ class BackgroundCall:
 
 def _quiet_child() -> None:
     """In a background child: Ctrl-C is the parent's, and nothing it writes reaches the terminal."""
-    import signal
-
     from .fsutil import output_to_null
 
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    _ignore_interrupts()
     output_to_null()
 
 

@@ -59,10 +59,7 @@ def smallest_n(
             if float(power_of(np.array([high]))[0]) >= target:
                 break
             if high >= hi:
-                raise InfeasibleDesign(
-                    f"no sample size up to {hi:,} per group reaches the target power; "
-                    "the effect is too small for this design"
-                )
+                raise _unreachable(hi)
             low, step = high, step * 2
     while high - low > _BLOCK * 4:
         mid = (low + high) // 2
@@ -74,6 +71,12 @@ def smallest_n(
     p = power_of(cand)
     i = int(np.argmax(p >= target))
     return int(cand[i]), float(p[i])
+
+
+def _unreachable(hi: int) -> InfeasibleDesign:
+    """What both size searches raise when no n up to ``hi`` reaches the target."""
+    return InfeasibleDesign(f"no sample size up to {hi:,} per group reaches the target power; "
+                            "the effect is too small for this design")
 
 
 def smallest_n_pointwise(
@@ -96,6 +99,9 @@ def smallest_n_pointwise(
             memo[k] = float(power_of(np.array([k]))[0])
         return memo[k]
 
+    def probit(p: float) -> float:
+        return float(ndtri(min(max(p, 1e-12), 1 - 1e-12)))
+
     first = int(min(max(math.ceil(start) if math.isfinite(start) else hi, lo), hi))
     step = 1
     if at(first) >= target:  # step down until power falls below the target
@@ -111,21 +117,18 @@ def smallest_n_pointwise(
         low = first
         while True:
             if low >= hi:
-                raise InfeasibleDesign(
-                    f"no sample size up to {hi:,} per group reaches the target power; "
-                    "the effect is too small for this design"
-                )
+                raise _unreachable(hi)
             high = min(hi, low + step)
             if at(high) >= target:
                 break
             low, step = high, step * 2
-    z_target = float(ndtri(min(max(target, 1e-12), 1 - 1e-12)))
+    z_target = probit(target)
     width_before = None
     while high - low > 1:
         width = high - low
         mid = None
         if width_before is None or 2 * width <= width_before:  # the last step halved the bracket
-            z_low, z_high = (float(ndtri(min(max(at(k), 1e-12), 1 - 1e-12))) for k in (low, high))
+            z_low, z_high = probit(at(low)), probit(at(high))
             if z_high > z_low:
                 r_low, r_high = math.sqrt(low), math.sqrt(high)
                 guess = (r_low + (z_target - z_low) * (r_high - r_low) / (z_high - z_low)) ** 2
